@@ -1,0 +1,47 @@
+"""Campaign policies: expected value, do-not-contact, exploration, holdout, ranking.
+
+Everything here is a pure function of arrays and thresholds: the service loads a campaign
+file with :func:`load_campaigns`, draws deterministic uniforms with
+:func:`uniform_draws`, decides with :func:`decide` and, for contact lists, ranks with
+:func:`rank`.
+"""
+
+from __future__ import annotations
+
+from service.policy.campaign import NO_CONTACT, ArmCost, Campaign, policy_hash
+from service.policy.decide import REASONS, DecisionBatch, decide
+from service.policy.draws import Draws, uniform_draws, uniform_hash
+from service.policy.exploration import choice_probabilities, explore_pick, final_probabilities
+from service.policy.loader import load_campaigns, parse_campaigns
+from service.policy.rank import EXCLUSION_REASONS, RankResult, rank
+from service.policy.value import (
+    do_not_contact_flags,
+    expected_values,
+    greedy_actions,
+    two_sided_level,
+)
+
+__all__ = [
+    "EXCLUSION_REASONS",
+    "NO_CONTACT",
+    "REASONS",
+    "ArmCost",
+    "Campaign",
+    "DecisionBatch",
+    "Draws",
+    "RankResult",
+    "choice_probabilities",
+    "decide",
+    "do_not_contact_flags",
+    "expected_values",
+    "explore_pick",
+    "final_probabilities",
+    "greedy_actions",
+    "load_campaigns",
+    "parse_campaigns",
+    "policy_hash",
+    "rank",
+    "two_sided_level",
+    "uniform_draws",
+    "uniform_hash",
+]
