@@ -13,6 +13,12 @@ from service.evaluation.areas import auuc, qini_coefficient
 from service.evaluation.curves import Curve, perfect_qini_curve, qini_curve, uplift_curve
 from service.evaluation.profit import profit_curve
 from service.evaluation.report import evaluate_uplift
+from service.evaluation.selection import (
+    CrossValidated,
+    SelectionResult,
+    cross_validated_uplift,
+    select_learner,
+)
 from service.evaluation.tables import calibration_table, decile_table
 from service.evaluation.topk import UpliftEstimate, uplift_at_top
 
@@ -32,4 +38,9 @@ __all__ = [
     "decile_table",
     "calibration_table",
     "evaluate_uplift",
+    # learner selection
+    "CrossValidated",
+    "SelectionResult",
+    "cross_validated_uplift",
+    "select_learner",
 ]

@@ -49,7 +49,5 @@ def make_learner(name: str, **params: Any) -> UpliftLearner:
     try:
         cls = LEARNERS[name]
     except KeyError:
-        raise DataError(
-            f"Unknown learner {name!r}; choose one of {sorted(LEARNERS)}."
-        ) from None
+        raise DataError(f"Unknown learner {name!r}; choose one of {sorted(LEARNERS)}.") from None
     return cls(**params)

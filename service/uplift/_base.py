@@ -6,11 +6,12 @@ from typing import Any
 
 import numpy as np
 from sklearn.base import BaseEstimator
+from sklearn.exceptions import NotFittedError as SklearnNotFitted
 from sklearn.model_selection import StratifiedKFold
 from sklearn.utils import check_random_state
 from sklearn.utils.validation import check_is_fitted
 
-from service.errors import DataError
+from service.errors import DataError, NotFittedError
 from service.uplift._bases import fit_model, make_model, predict_mean
 from service.uplift._checks import (
     Arms,
@@ -50,8 +51,16 @@ class FitData:
     def subset(self, rows: np.ndarray, rng: np.random.RandomState) -> FitData:
         """The same data restricted to ``rows`` (repeats allowed), with its own RNG."""
         arms = Arms(self.arms.control, self.arms.arms, self.t[rows])
-        return FitData(self.X[rows], self.y[rows], arms, self.propensity[rows], self.w[rows],
-                       self.binary, self.categorical, rng)
+        return FitData(
+            self.X[rows],
+            self.y[rows],
+            arms,
+            self.propensity[rows],
+            self.w[rows],
+            self.binary,
+            self.categorical,
+            rng,
+        )
 
     @property
     def n_arms(self) -> int:
@@ -172,8 +181,16 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
         encoded = self.encoder_.transform(frame)
         rng = check_random_state(self.random_state)
         p, given = check_propensity(propensity, arms, weights)
-        data = FitData(encoded, values, arms, p, weights, kind == "binary",
-                       self.encoder_.categorical_mask, rng)
+        data = FitData(
+            encoded,
+            values,
+            arms,
+            p,
+            weights,
+            kind == "binary",
+            self.encoder_.categorical_mask,
+            rng,
+        )
         if self.propensity == "estimate" and not given:
             data.propensity = self._estimate_propensity(data)
         self.propensity_mean_ = data.propensity.mean(axis=0)
@@ -194,7 +211,7 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
         p = np.clip(p, 1e-3, 1 - 1e-3)
         p /= p.sum(axis=1, keepdims=True)
         warn_overlap(p)
-        return p
+        return np.asarray(p)
 
     def _fit(self, data: FitData) -> None:
         raise NotImplementedError
@@ -205,7 +222,12 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
         raise NotImplementedError
 
     def _encode(self, X: Any) -> np.ndarray:
-        check_is_fitted(self, "encoder_")
+        try:
+            check_is_fitted(self, "encoder_")
+        except SklearnNotFitted as err:
+            raise NotFittedError(
+                f"This {type(self).__name__} is not fitted yet; call fit(X, y, treatment) first."
+            ) from err
         encoded: np.ndarray = self.encoder_.transform(X)
         return encoded
 

@@ -59,9 +59,7 @@ def _linear(classifier: bool, categorical: np.ndarray) -> Any:
     return Pipeline([("prepare", prepare), ("model", model)])
 
 
-def make_model(
-    base: Any, *, classifier: bool, categorical: np.ndarray, seed: int
-) -> Any:
+def make_model(base: Any, *, classifier: bool, categorical: np.ndarray, seed: int) -> Any:
     """Build an unfitted outcome (``classifier=True`` for binary) or effect model.
 
     ``base`` is ``"gbm"`` (histogram gradient boosting), ``"linear"`` (logistic or ridge

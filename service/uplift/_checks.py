@@ -46,9 +46,7 @@ def _plain(value: Any) -> Any:
     return value.item() if isinstance(value, np.generic) else value
 
 
-def check_arms(
-    treatment: Any, control: Any, arms: Any, n_rows: int, min_rows: int
-) -> Arms:
+def check_arms(treatment: Any, control: Any, arms: Any, n_rows: int, min_rows: int) -> Arms:
     """Resolve treatment labels into arm indices, refusing anything ambiguous."""
     series = pd.Series(np.asarray(treatment, dtype=object).ravel())
     if len(series) != n_rows:
@@ -144,9 +142,7 @@ def check_weights(sample_weight: Any, n_rows: int) -> np.ndarray:
     return w
 
 
-def check_propensity(
-    propensity: Any, arms: Arms, weights: np.ndarray
-) -> tuple[np.ndarray, bool]:
+def check_propensity(propensity: Any, arms: Arms, weights: np.ndarray) -> tuple[np.ndarray, bool]:
     """Return the (n, 1 + n_arms) assignment-probability matrix and whether it was given.
 
     Without one, the campaign is taken as randomized with constant probabilities equal

@@ -56,9 +56,7 @@ class BootstrapUplift(BaseEstimator):  # type: ignore[misc]
     ) -> BootstrapUplift:
         """Fit the learner on all rows and on each within-arm bootstrap resample."""
         if not isinstance(self.n_bootstrap, int) or self.n_bootstrap < 2:
-            raise DataError(
-                f"n_bootstrap={self.n_bootstrap!r} must be an integer of at least 2."
-            )
+            raise DataError(f"n_bootstrap={self.n_bootstrap!r} must be an integer of at least 2.")
         rng = check_random_state(self.random_state)
         self.estimator_ = clone(self.learner).set_params(random_state=rng.randint(2**31 - 1))
         data = self.estimator_._prepare(X, y, treatment, propensity, sample_weight)
@@ -82,7 +80,8 @@ class BootstrapUplift(BaseEstimator):  # type: ignore[misc]
     def predict_effects(self, X: Any) -> tuple[np.ndarray, np.ndarray]:
         """``(tau, mu0)`` from the learner fitted on all rows."""
         check_is_fitted(self, "estimator_")
-        return self.estimator_.predict_effects(X)
+        tau, mu0 = self.estimator_.predict_effects(X)
+        return tau, mu0
 
     def predict(self, X: Any) -> np.ndarray:
         """Uplift of each arm against control, shape (n, n_arms)."""

@@ -20,7 +20,7 @@ def dr_pseudo_outcomes(
     propensities are right.
     """
     residual = (y[:, None] - mu) / propensity * (t[:, None] == np.arange(mu.shape[1]))
-    return mu[:, 1:] - mu[:, :1] + residual[:, 1:] - residual[:, :1]
+    return np.asarray(mu[:, 1:] - mu[:, :1] + residual[:, 1:] - residual[:, :1])
 
 
 class DRLearner(UpliftLearner):
