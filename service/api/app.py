@@ -1,0 +1,107 @@
+"""The app factory: ``create_app(settings)`` builds the scoring service.
+
+The registry, the decision log and the campaign catalog are built once in the lifespan
+(unless passed in) and reached by routes through ``deps.py``.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
+
+from fastapi import FastAPI
+
+from service import __version__
+from service.api.auth import KeyRing
+from service.api.errors import install_error_handlers
+from service.api.limits import BodySizeLimit
+from service.api.metrics import Metrics, MetricsMiddleware
+from service.api.responses import OrjsonResponse
+from service.api.routes import admin, campaigns, health, metrics, models, rank, score
+from service.api.state import ServiceState
+from service.config import Settings, load_settings
+from service.decisions import DecisionLog
+from service.registry import ModelRegistry
+
+__all__ = ["API_VERSION", "app_from_env", "create_app"]
+
+logger = logging.getLogger(__name__)
+
+API_VERSION = "1"
+"""Major version of the HTTP API; it is also the path prefix (``/v1``)."""
+
+_DESCRIPTION = """
+Per-customer contact decisions from uplift models: `POST /v1/score` for one customer,
+`POST /v1/score/batch` for many, `POST /v1/rank` for a contact list cut at capacity or
+budget. Every decision is committed to the decision log before it is returned, and a
+retried request returns the same decision and `decision_id`.
+
+Errors always have the shape `{"error": {"code", "message", "details"}}`.
+
+**Responsible use.** Decisions are estimates with stated uncertainty, not advice. Honour
+opt-outs, do-not-call registries, consent and marketing law where each customer lives; do
+not target on protected attributes where law forbids it. In healthcare an uplift estimate
+is not a clinical decision; political outreach follows local election law.
+"""
+
+
+def create_app(
+    settings: Settings, *, registry: ModelRegistry | None = None, log: DecisionLog | None = None
+) -> FastAPI:
+    """Build the scoring service.
+
+    Parameters
+    ----------
+    settings : Settings
+        Read once by :func:`service.config.load_settings`.
+    registry : ModelRegistry, optional
+        Default: a registry on ``settings.models_dir``, built at start-up.
+    log : DecisionLog, optional
+        Default: the log at ``settings.decision_log``, opened at start-up and closed at
+        shutdown (a log passed in stays open: its owner closes it).
+    """
+    keyring = KeyRing(settings.keys())
+    metrics_ = Metrics()
+    state = ServiceState(settings, registry=registry, log=log, keyring=keyring, metrics=metrics_)
+
+    @asynccontextmanager
+    async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+        if not keyring.enabled:
+            logger.warning(
+                "NO API KEY CONFIGURED: authentication is OFF and every caller on this "
+                "machine acts as admin; the service only binds to loopback (%s). Configure "
+                "UPSHOT_API_KEYS before exposing it.",
+                settings.host,
+            )
+        await state.start()
+        logger.info(
+            "serving campaigns %s; not servable: %s",
+            sorted(state.catalog.bound),
+            sorted(state.catalog.problems),
+        )
+        try:
+            yield
+        finally:
+            state.close()
+
+    app = FastAPI(
+        title="upshot scoring service",
+        version=f"{API_VERSION}.0 (upshot {__version__})",
+        description=_DESCRIPTION,
+        lifespan=lifespan,
+        default_response_class=OrjsonResponse,
+    )
+    app.state.service = state
+    app.state.metrics = metrics_
+    install_error_handlers(app)
+    app.add_middleware(BodySizeLimit, max_bytes=settings.max_body_bytes)
+    app.add_middleware(MetricsMiddleware, metrics=metrics_)
+    for module in (score, rank, models, campaigns, admin, health, metrics):
+        app.include_router(module.router)
+    return app
+
+
+def app_from_env() -> FastAPI:
+    """The app configured from ``UPSHOT_*`` variables (for ``uvicorn --factory``)."""
+    return create_app(load_settings())

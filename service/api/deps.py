@@ -1,0 +1,102 @@
+"""Request dependencies as ``Annotated`` aliases; tests swap them with overrides."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+from fastapi import Depends, Request, Security
+from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
+
+from service.api.auth import Principal
+from service.api.errors import ApiError
+from service.api.state import ServiceState
+from service.decisions import DecisionLog
+from service.registry import ModelRegistry
+from service.scoring import Catalog
+
+__all__ = [
+    "AdminKey",
+    "CatalogDep",
+    "LogDep",
+    "RegistryDep",
+    "ScorerKey",
+    "StateDep",
+    "get_catalog",
+    "get_log",
+    "get_registry",
+    "get_state",
+]
+
+_bearer = HTTPBearer(auto_error=False, description="An API key: `Authorization: Bearer <key>`.")
+_CHALLENGE = {"WWW-Authenticate": "Bearer"}
+
+
+def get_state(request: Request) -> ServiceState:
+    """The state the app built at start-up."""
+    state: ServiceState = request.app.state.service
+    return state
+
+
+StateDep = Annotated[ServiceState, Depends(get_state)]
+
+
+def get_catalog(state: StateDep) -> Catalog:
+    """The current campaign catalog (one snapshot per request)."""
+    return state.catalog
+
+
+def get_log(state: StateDep) -> DecisionLog:
+    """The decision log."""
+    return state.log
+
+
+def get_registry(state: StateDep) -> ModelRegistry:
+    """The model registry."""
+    return state.registry
+
+
+CatalogDep = Annotated[Catalog, Depends(get_catalog)]
+LogDep = Annotated[DecisionLog, Depends(get_log)]
+RegistryDep = Annotated[ModelRegistry, Depends(get_registry)]
+
+
+def _authenticate(
+    state: ServiceState, credentials: HTTPAuthorizationCredentials | None, role: str
+) -> Principal:
+    header = f"{credentials.scheme} {credentials.credentials}" if credentials else None
+    principal = state.keyring.authenticate(header)
+    if principal is None:
+        raise ApiError(
+            401,
+            "unauthorized",
+            "A valid API key is required; send it as `Authorization: Bearer <key>`.",
+            headers=_CHALLENGE,
+        )
+    if not principal.allows(role):
+        raise ApiError(
+            403,
+            "forbidden",
+            f"API key {principal.name!r} has role {principal.role!r}, but this endpoint "
+            f"needs {role!r}; use a key with that role.",
+        )
+    return principal
+
+
+def require_scorer(
+    state: StateDep,
+    credentials: Annotated[HTTPAuthorizationCredentials | None, Security(_bearer)],
+) -> Principal:
+    """A key with role scorer (or admin)."""
+    return _authenticate(state, credentials, "scorer")
+
+
+def require_admin(
+    state: StateDep,
+    credentials: Annotated[HTTPAuthorizationCredentials | None, Security(_bearer)],
+) -> Principal:
+    """A key with role admin."""
+    return _authenticate(state, credentials, "admin")
+
+
+ScorerKey = Annotated[Principal, Depends(require_scorer)]
+AdminKey = Annotated[Principal, Depends(require_admin)]

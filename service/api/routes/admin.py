@@ -1,0 +1,43 @@
+"""Admin actions: promote a model version, reload the campaign file."""
+
+from __future__ import annotations
+
+import asyncio
+import logging
+
+from fastapi import APIRouter
+
+from service.api.deps import AdminKey, RegistryDep, StateDep
+from service.api.routes.campaigns import describe_campaigns
+from service.api.routing import OrjsonRoute
+from service.api.schemas import PromoteRequest, PromoteResult, ReloadResult
+
+router = APIRouter(prefix="/v1/admin", tags=["admin"], route_class=OrjsonRoute)
+
+logger = logging.getLogger(__name__)
+
+
+@router.post("/models/{name}/promote", response_model=PromoteResult)
+async def promote(
+    name: str, body: PromoteRequest, state: StateDep, registry: RegistryDep, key: AdminKey
+) -> PromoteResult:
+    """Make a version the champion and rebind the campaigns that follow the champion."""
+    previous = await asyncio.to_thread(registry.champion, name)
+    await asyncio.to_thread(
+        registry.promote, name, body.version, actor=f"api:{key.name}", reason=body.reason
+    )
+    catalog = await state.rebind()
+    logger.warning("model %s promoted to %s by %s: %s", name, body.version, key.name, body.reason)
+    following = sorted(
+        cid for cid, (model, version) in catalog.serving().items()
+        if model == name and version == body.version
+    )  # fmt: skip
+    return PromoteResult(name=name, champion=body.version, previous=previous, campaigns=following)
+
+
+@router.post("/campaigns/reload", response_model=ReloadResult)
+async def reload_campaigns(state: StateDep, key: AdminKey) -> ReloadResult:
+    """Re-read the campaign file; on an error the previous campaigns keep serving."""
+    catalog = await state.reload()
+    logger.warning("campaigns reloaded by %s: %s", key.name, sorted(catalog.campaigns))
+    return ReloadResult(campaigns=describe_campaigns(catalog))

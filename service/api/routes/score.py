@@ -1,0 +1,91 @@
+"""Decisions for one customer or a batch of customers."""
+
+from __future__ import annotations
+
+import asyncio
+
+from fastapi import APIRouter
+
+from service.api.candidates import candidates, check_batch_size
+from service.api.deps import CatalogDep, LogDep, ScorerKey, StateDep
+from service.api.metrics import Metrics
+from service.api.responses import OrjsonResponse
+from service.api.routing import OrjsonRoute
+from service.api.schemas import (
+    BatchDecisions,
+    BatchScoreRequest,
+    Decision,
+    DecisionColumns,
+    ErrorBody,
+    ScoreRequest,
+)
+from service.scoring import (
+    Decided,
+    commit,
+    decide_many,
+    decide_one,
+    decision_columns,
+    decision_rows,
+)
+
+router = APIRouter(prefix="/v1/score", tags=["scoring"], route_class=OrjsonRoute)
+
+ERRORS: dict[int | str, dict[str, object]] = {
+    status: {"model": ErrorBody} for status in (401, 403, 404, 413, 422, 503)
+}
+# Below this many customers, moving the work to a thread costs more than it frees.
+THREAD_ROWS = 2000
+
+
+@router.post("", response_model=Decision, responses=ERRORS)
+async def score(
+    body: ScoreRequest, catalog: CatalogDep, log: LogDep, state: StateDep, _: ScorerKey
+) -> OrjsonResponse:
+    """Decide whether and how to contact one customer; the decision is logged first."""
+    bound = catalog.get(body.campaign)
+    customer = body.customer
+    decided = decide_one(bound, customer.id, customer.features, customer.value)
+    await commit(log, decided)
+    count_decisions(state.metrics, decided)
+    return OrjsonResponse(decision_rows(decided)[0])
+
+
+@router.post("/batch", response_model=BatchDecisions | DecisionColumns, responses=ERRORS)
+async def score_batch(
+    body: BatchScoreRequest, catalog: CatalogDep, log: LogDep, state: StateDep, _: ScorerKey
+) -> OrjsonResponse:
+    """Decide for many customers; column-form requests get column-form answers."""
+    n = check_batch_size(body, state.settings.max_batch)
+    bound = catalog.get(body.campaign)
+
+    def work() -> Decided:
+        ids, table, values = candidates(body, bound.schema)
+        return decide_many(bound, ids, table, values)
+
+    decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
+    await commit(log, decided)
+    count_decisions(state.metrics, decided)
+    if body.columns is not None:
+        return OrjsonResponse(decision_columns(decided))
+    rows = decision_rows(decided)
+    return OrjsonResponse(
+        {
+            "campaign": bound.campaign.id,
+            "model": bound.model_ref,
+            "count": len(rows),
+            "decisions": rows,
+        }  # fmt: skip
+    )
+
+
+def count_decisions(metrics: Metrics, decided: Decided) -> None:
+    """Count committed decisions by action, with the explored and held-out shares."""
+    labels = decided.bound.campaign.action_labels()
+    result = decided.ranked if decided.ranked is not None else decided.batch
+    metrics.record_decisions(
+        decided.bound.campaign.id,
+        "rank" if decided.ranked is not None else "score",
+        [labels[a] for a in result.action.tolist()],
+        explored=int(decided.batch.explored.sum()),
+        held_out=int(result.holdout.sum()),
+    )

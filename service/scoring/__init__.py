@@ -1,0 +1,54 @@
+"""The glue between a request and a decision, free of HTTP.
+
+Data flows one way: request features -> validation against the model's feature schema
+(:mod:`~service.scoring.features`) -> model (compiled fast path when available,
+:mod:`~service.scoring.estimates`) -> policy (:func:`service.policy.decide` and
+:func:`service.policy.rank`) -> decision records -> decision log -> response
+(:mod:`~service.scoring.engine`). :mod:`~service.scoring.catalog` binds each campaign to
+its verified model version. The HTTP layer, the batch endpoint and the ranked list all
+share this path.
+"""
+
+from __future__ import annotations
+
+from service.scoring.catalog import (
+    BoundCampaign,
+    Catalog,
+    bind_campaigns,
+    load_catalog,
+    readiness_problems,
+)
+from service.scoring.engine import (
+    Decided,
+    commit,
+    decide_many,
+    decide_one,
+    decision_columns,
+    decision_rows,
+    rank_many,
+    ranked_list,
+)
+from service.scoring.estimates import Estimates, ServableModel, servable
+from service.scoring.features import FeatureSchema, FeatureTable, InvalidFeatures
+
+__all__ = [
+    "BoundCampaign",
+    "Catalog",
+    "Decided",
+    "Estimates",
+    "FeatureSchema",
+    "FeatureTable",
+    "InvalidFeatures",
+    "ServableModel",
+    "bind_campaigns",
+    "commit",
+    "decide_many",
+    "decide_one",
+    "decision_columns",
+    "decision_rows",
+    "load_catalog",
+    "rank_many",
+    "ranked_list",
+    "readiness_problems",
+    "servable",
+]

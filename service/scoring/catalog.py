@@ -1,0 +1,174 @@
+"""Campaigns bound to the verified model versions that score them.
+
+A :class:`Catalog` is an immutable snapshot: the campaigns of the campaign file, the
+model each one is scored with (loaded through the registry, which verifies every hash
+before unpickling), and what went wrong for those that cannot be served. Reloading
+builds a new snapshot and swaps it in whole, so a request never sees half a reload.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import numpy.typing as npt
+
+from service.decisions import DecisionLog
+from service.errors import BundleError, NotFoundError, PolicyError
+from service.policy import Campaign, load_campaigns
+from service.registry import LoadedBundle, ModelRegistry
+from service.scoring.estimates import ServableModel, servable
+from service.scoring.features import FeatureSchema
+
+__all__ = ["BoundCampaign", "Catalog", "bind_campaigns", "load_catalog", "readiness_problems"]
+
+logger = logging.getLogger(__name__)
+
+
+@dataclass(frozen=True, eq=False)
+class BoundCampaign:
+    """A campaign together with the verified model version that scores it."""
+
+    campaign: Campaign
+    bundle: LoadedBundle
+    model: ServableModel
+    schema: FeatureSchema
+    arm_columns: npt.NDArray[np.intp]
+    outcome_type: str
+
+    @property
+    def model_ref(self) -> dict[str, str]:
+        return {"name": self.bundle.name, "version": self.bundle.version}
+
+
+@dataclass(frozen=True)
+class Catalog:
+    """Campaigns by id, the ones that can be served, and why the others cannot."""
+
+    campaigns: Mapping[str, Campaign]
+    bound: Mapping[str, BoundCampaign]
+    problems: Mapping[str, str] = field(default_factory=dict)
+
+    def get(self, campaign_id: str) -> BoundCampaign:
+        """The served campaign ``campaign_id``.
+
+        Raises
+        ------
+        NotFoundError
+            No such campaign in the campaign file.
+        BundleError
+            The campaign exists but its model could not be loaded and verified.
+        """
+        bound = self.bound.get(campaign_id)
+        if bound is not None:
+            return bound
+        if campaign_id not in self.campaigns:
+            raise NotFoundError(
+                f"Campaign {campaign_id!r} is not in the campaign file; known campaigns are "
+                f"{sorted(self.campaigns)}."
+            )
+        raise BundleError(
+            f"Campaign {campaign_id!r} cannot be scored: {self.problems[campaign_id]}"
+        )
+
+    def serving(self) -> dict[str, tuple[str, str]]:
+        """Campaign -> (model name, version) for every served campaign."""
+        return {cid: (b.bundle.name, b.bundle.version) for cid, b in self.bound.items()}
+
+
+_Loaded = tuple[LoadedBundle, ServableModel, FeatureSchema]
+
+
+def load_catalog(
+    registry: ModelRegistry,
+    campaigns_file: Path,
+    *,
+    compile: bool = True,
+    previous: Catalog | None = None,
+) -> Catalog:
+    """Load the campaign file and bind each campaign to its model version.
+
+    Raises
+    ------
+    PolicyError
+        The campaign file itself is invalid (the message names the campaign and key).
+    """
+    campaigns = load_campaigns(campaigns_file)
+    return bind_campaigns(registry, campaigns, compile=compile, previous=previous)
+
+
+def bind_campaigns(
+    registry: ModelRegistry,
+    campaigns: Mapping[str, Campaign],
+    *,
+    compile: bool = True,
+    previous: Catalog | None = None,
+) -> Catalog:
+    """Bind campaigns to their current model versions (champion unless pinned).
+
+    A campaign whose model is missing or fails verification is recorded in
+    ``problems`` instead, so the others still serve and ``/readyz`` reports the failure.
+    Models already loaded by ``previous`` are reused rather than loaded again.
+    """
+    cache: dict[tuple[str, str], _Loaded] = {}
+    if previous is not None:
+        for b in previous.bound.values():
+            cache[(b.bundle.name, b.bundle.version)] = (b.bundle, b.model, b.schema)
+    bound: dict[str, BoundCampaign] = {}
+    problems: dict[str, str] = {}
+    for cid, campaign in campaigns.items():
+        try:
+            bound[cid] = _bind(registry, campaign, cache, compile)
+        except (NotFoundError, BundleError, PolicyError) as err:
+            problems[cid] = str(err)
+            logger.error("campaign %s cannot be served: %s", cid, err)
+    return Catalog(dict(campaigns), bound, problems)
+
+
+def _bind(
+    registry: ModelRegistry,
+    campaign: Campaign,
+    cache: dict[tuple[str, str], _Loaded],
+    compile: bool,
+) -> BoundCampaign:
+    version = registry.resolve(campaign.model, campaign.model_version)
+    key = (campaign.model, version)
+    if key not in cache:
+        bundle = registry.load(campaign.model, version)
+        schema = FeatureSchema.from_manifest(bundle.manifest["features"])
+        cache[key] = (bundle, servable(bundle.model, compile=compile), schema)
+        logger.info("loaded model %s:%s (%s path)", *key, cache[key][1].kind)
+    bundle, model, schema = cache[key]
+    arms = [str(a) for a in bundle.manifest["arms"]]
+    return BoundCampaign(
+        campaign=campaign,
+        bundle=bundle,
+        model=model,
+        schema=schema,
+        arm_columns=campaign.arm_columns(arms),
+        outcome_type=str(bundle.manifest.get("outcome_type", "binary")),
+    )
+
+
+def readiness_problems(catalog: Catalog, registry: ModelRegistry, log: DecisionLog) -> list[str]:
+    """Why the service should not take traffic (empty when ready).
+
+    Every served model version is verified again on disk, so a bundle that was removed
+    or altered after start-up makes the service unready before a restart would fail.
+    """
+    problems = [f"campaign {cid!r}: {problem}" for cid, problem in catalog.problems.items()]
+    if not catalog.campaigns:
+        problems.append("the campaign file declares no campaign")
+    for name, version in sorted(set(catalog.serving().values())):
+        try:
+            registry.verify(name, version)
+        except (BundleError, NotFoundError) as err:
+            problems.append(f"model {name}:{version} failed verification: {err}")
+    if not log.writable():
+        problems.append(
+            "the decision log is not writable; check the disk and the permissions of its file"
+        )
+    return problems

@@ -1,0 +1,439 @@
+"""Request features -> model -> policy -> decision records, with no HTTP in sight.
+
+:func:`decide_one` and :func:`decide_many` turn validated customers into decisions for
+one campaign; :func:`rank_many` also cuts a contact list. Each returns a
+:class:`Decided` whose ``records`` must be committed to the decision log
+(:func:`commit`) before anything is shown to a caller; the response views
+(:func:`decision_rows`, :func:`decision_columns`, :func:`ranked_list`) only read it.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import hashlib
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+import orjson
+
+from service.decisions import DecisionLog, DecisionRecord, decision_id, utc_now
+from service.errors import DataError
+from service.policy import DecisionBatch, RankResult, decide, rank, two_sided_level, uniform_draws
+from service.scoring.catalog import BoundCampaign
+from service.scoring.estimates import Estimates
+from service.scoring.features import FeatureTable, InvalidFeatures
+
+__all__ = [
+    "Decided",
+    "commit",
+    "decide_many",
+    "decide_one",
+    "decision_columns",
+    "decision_rows",
+    "rank_many",
+    "ranked_list",
+]
+
+# Above this many records the log's row checks run in a worker thread, so that a large
+# batch does not hold up the event loop (and single-customer requests) meanwhile.
+_THREAD_RECORDS = 2000
+
+Array = npt.NDArray[Any]
+
+
+@dataclass(frozen=True, eq=False)
+class Decided:
+    """Decisions for one campaign, ready to be committed and shown.
+
+    ``arm`` is the arm each decision's ``uplift`` refers to: the chosen arm (also when
+    held out), or the arm with the best expected value when no contact was chosen.
+    """
+
+    bound: BoundCampaign
+    ids: list[str]
+    values: npt.NDArray[np.float64]
+    estimates: Estimates
+    batch: DecisionBatch
+    input_reasons: list[list[str]]
+    decision_ids: list[str]
+    records: list[DecisionRecord]
+    arm: npt.NDArray[np.intp]
+    ranked: RankResult | None = None
+
+    def __len__(self) -> int:
+        return len(self.ids)
+
+
+# -- deciding ------------------------------------------------------------------------------
+
+
+def decide_one(
+    bound: BoundCampaign, customer_id: str, features: Mapping[str, Any], value: float | None
+) -> Decided:
+    """Decide for one customer (the compiled single-row path when available)."""
+    clean, reasons = bound.schema.check_row(features)
+    level = two_sided_level(bound.campaign.confidence)
+    estimates = bound.model.estimate_row(clean, level).take(bound.arm_columns)
+    values = _values(bound, [value])
+    return _decide(bound, [customer_id], [clean], values, estimates, [reasons], None)
+
+
+def decide_many(
+    bound: BoundCampaign, ids: Sequence[str], table: FeatureTable, values: Sequence[Any] | None
+) -> Decided:
+    """Decide for many customers at once (vectorised)."""
+    estimates, value_array = _estimate(bound, ids, table, values)
+    return _decide(bound, list(ids), _feature_rows(table), value_array, estimates,
+                   table.reasons, None)  # fmt: skip
+
+
+def rank_many(
+    bound: BoundCampaign,
+    ids: Sequence[str],
+    table: FeatureTable,
+    values: Sequence[Any] | None,
+    *,
+    capacity: int | None,
+    budget: float | None,
+) -> Decided:
+    """Decide for candidates and cut the contact list at capacity and/or budget.
+
+    Without either limit the campaign's default capacity applies. The decision ids of a
+    ranked list also depend on the list request (candidates, limits), since the cut
+    decides who is contacted; a retried identical request gets the same ids.
+    """
+    _refuse_duplicates(ids)
+    if capacity is None and budget is None:
+        capacity = bound.campaign.capacity
+    estimates, value_array = _estimate(bound, ids, table, values)
+    context = _rank_context(ids, capacity, budget)
+    return _decide(bound, list(ids), _feature_rows(table), value_array, estimates,
+                   table.reasons, (capacity, budget, context))  # fmt: skip
+
+
+def _estimate(
+    bound: BoundCampaign, ids: Sequence[str], table: FeatureTable, values: Sequence[Any] | None
+) -> tuple[Estimates, npt.NDArray[np.float64]]:
+    if len(ids) != len(table):
+        raise DataError(f"{len(ids)} ids for {len(table)} feature rows; send one id per row.")
+    value_array = _values(bound, values if values is not None else [None] * len(ids))
+    if not len(ids):
+        k = len(bound.arm_columns)
+        empty = np.empty((0, k))
+        return Estimates(empty, np.empty(0), empty, empty), value_array
+    level = two_sided_level(bound.campaign.confidence)
+    return bound.model.estimate(table, level).take(bound.arm_columns), value_array
+
+
+def _decide(
+    bound: BoundCampaign,
+    ids: list[str],
+    features: list[dict[str, Any]],
+    values: npt.NDArray[np.float64],
+    est: Estimates,
+    input_reasons: list[list[str]],
+    ranking: tuple[int | None, float | None, str] | None,
+) -> Decided:
+    campaign = bound.campaign
+    costs = campaign.costs
+    batch = decide(
+        est.tau, est.low, est.high, est.mu0, values, costs,
+        campaign.opted_out(ids), uniform_draws(campaign.salt, campaign.id, ids),
+        exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
+    )  # fmt: skip
+    ranked = None
+    if ranking is not None:
+        ranked = rank(batch, ids, capacity=ranking[0], budget=ranking[1], costs=costs)
+    model = (bound.bundle.name, bound.bundle.version)
+    value_list = values.tolist()
+    ids_out = [
+        decision_id(campaign.id, i, campaign.hash, model, f, v)
+        for i, f, v in zip(ids, features, value_list, strict=True)
+    ]
+    if ranking is not None:
+        ids_out = [_derived_id(d, ranking[2]) for d in ids_out]
+    arm = np.where(batch.chosen > 0, batch.chosen, np.argmax(batch.ev_per_arm, axis=1) + 1)
+    decided = Decided(
+        bound=bound, ids=ids, values=values, estimates=est, batch=batch,
+        input_reasons=input_reasons, decision_ids=ids_out, records=[],
+        arm=arm.astype(np.intp), ranked=ranked,
+    )  # fmt: skip
+    decided.records.extend(_records(decided, features))
+    return decided
+
+
+def _values(bound: BoundCampaign, values: Sequence[Any]) -> npt.NDArray[np.float64]:
+    default = bound.campaign.value
+    out = np.empty(len(values))
+    problems = []
+    for i, v in enumerate(values):
+        if v is None:
+            out[i] = default
+        elif type(v) in (int, float) and np.isfinite(v) and v >= 0:
+            out[i] = v
+        else:
+            problems.append(
+                {"row": i, "feature": "value", "problem": f"must be a finite number >= 0, "
+                 f"got {v!r}; send null to use the campaign's value ({default})"}
+            )  # fmt: skip
+    if problems:
+        raise InvalidFeatures(problems)
+    return out
+
+
+def _refuse_duplicates(ids: Sequence[str]) -> None:
+    if len(set(ids)) != len(ids):
+        seen: set[str] = set()
+        repeated = sorted({i for i in ids if i in seen or seen.add(i)})  # type: ignore[func-returns-value]
+        raise DataError(
+            f"Candidate id(s) {repeated[:10]} appear more than once; send each customer once."
+        )
+
+
+def _rank_context(ids: Sequence[str], capacity: int | None, budget: float | None) -> str:
+    digest = hashlib.blake2b(orjson.dumps([list(ids), capacity, budget]), digest_size=16)
+    return digest.hexdigest()
+
+
+def _derived_id(base: str, context: str) -> str:
+    return hashlib.blake2b(f"rank:{base}:{context}".encode(), digest_size=16).hexdigest()
+
+
+def _feature_rows(table: FeatureTable) -> list[dict[str, Any]]:
+    names = list(table.columns)
+    lists = []
+    for column in table.columns.values():
+        if column.dtype == object:
+            lists.append(column.tolist())
+        else:
+            lists.append(np.where(np.isnan(column), np.array(None), column).tolist())
+    return [dict(zip(names, row, strict=True)) for row in zip(*lists, strict=True)]
+
+
+def _records(decided: Decided, features: list[dict[str, Any]]) -> list[DecisionRecord]:
+    bound, batch, est, ranked = decided.bound, decided.batch, decided.estimates, decided.ranked
+    campaign = bound.campaign
+    labels = list(campaign.action_labels())
+    arms = labels[1:]
+    if ranked is None:
+        action, probs, held, mode = batch.action, batch.action_probs, batch.holdout, "score"
+        propensity = batch.propensity
+    else:
+        action, probs, held, mode = ranked.action, ranked.action_probs, ranked.holdout, "rank"
+        propensity = ranked.propensity
+    ev = np.column_stack([np.zeros(len(action)), batch.ev_per_arm])[np.arange(len(action)), action]
+    created = utc_now()
+    name, version = bound.bundle.name, bound.bundle.version
+    columns = zip(
+        decided.decision_ids, decided.ids, features, decided.values.tolist(),
+        est.tau.tolist(), est.low.tolist(), est.high.tolist(), est.mu0.tolist(),
+        action.tolist(), ev.tolist(), batch.explored.tolist(), held.tolist(),
+        batch.do_not_contact.tolist(), propensity.tolist(), probs.tolist(), strict=True,
+    )  # fmt: skip
+    return [
+        DecisionRecord(
+            decision_id=d_id,
+            created_at=created,
+            campaign=campaign.id,
+            customer_id=cid,
+            model_name=name,
+            model_version=version,
+            policy_hash=campaign.hash,
+            features=f,
+            value=v,
+            arms=arms,
+            tau=tau,
+            low=low,
+            high=high,
+            mu0=mu0,
+            action=labels[a],
+            expected_value=e,
+            explored=x,
+            holdout=h,
+            do_not_contact=dnc,
+            propensity=p,
+            action_probs=dict(zip(labels, pr, strict=True)),
+            mode=mode,
+        )  # fmt: skip
+        for (d_id, cid, f, v, tau, low, high, mu0, a, e, x, h, dnc, p, pr) in columns
+    ]
+
+
+# -- committing ----------------------------------------------------------------------------
+
+
+async def commit(log: DecisionLog, decided: Decided) -> None:
+    """Commit every record to the log; returns only once they are durable."""
+    if len(decided.records) > _THREAD_RECORDS:
+        await asyncio.to_thread(log.append_sync, decided.records)
+    else:
+        await log.append(decided.records)
+
+
+# -- views ---------------------------------------------------------------------------------
+
+
+def _reasons(decided: Decided, i: int) -> list[str]:
+    return decided.batch.reasons[i] + decided.input_reasons[i]
+
+
+def decision_rows(decided: Decided) -> list[dict[str, Any]]:
+    """One JSON-ready decision per customer, in request order."""
+    bound, batch, est = decided.bound, decided.batch, decided.estimates
+    campaign = bound.campaign
+    labels = campaign.action_labels()
+    costs = campaign.costs.tolist()
+    model = bound.model_ref
+    rows = np.arange(len(decided))
+    k = decided.arm - 1
+    outcome_arms = (est.mu0[:, None] + est.tau).tolist()
+    per = zip(
+        decided.decision_ids, decided.ids, batch.action.tolist(), decided.arm.tolist(),
+        est.tau[rows, k].tolist(), est.low[rows, k].tolist(), est.high[rows, k].tolist(),
+        est.mu0.tolist(), (est.mu0 + est.tau[rows, k]).tolist(), batch.expected_value.tolist(),
+        batch.do_not_contact.tolist(), batch.explored.tolist(), batch.holdout.tolist(),
+        batch.propensity.tolist(), est.tau.tolist(), est.low.tolist(), est.high.tolist(),
+        batch.ev_per_arm.tolist(), batch.dnc_per_arm.tolist(), outcome_arms, strict=True,
+    )  # fmt: skip
+    out = []
+    for i, (d_id, cid, a, arm, u, lo, hi, mu0, with_arm, ev, dnc, x, h, p, taus, lows, highs,
+            evs, dncs, outs) in enumerate(per):  # fmt: skip
+        out.append(
+            {
+                "decision_id": d_id,
+                "customer_id": cid,
+                "campaign": campaign.id,
+                "model": model,
+                "policy_hash": campaign.hash,
+                "action": labels[a],
+                "arm": labels[arm],
+                "uplift": u,
+                "uplift_low": lo,
+                "uplift_high": hi,
+                "confidence": campaign.confidence,
+                "outcome_without_contact": mu0,
+                "outcome_with_arm": with_arm,
+                "expected_value": ev,
+                "do_not_contact": dnc,
+                "explored": x,
+                "holdout": h,
+                "propensity": p,
+                "reasons": _reasons(decided, i),
+                "arms": [
+                    {
+                        "arm": labels[j + 1],
+                        "cost": costs[j],
+                        "uplift": taus[j],
+                        "uplift_low": lows[j],
+                        "uplift_high": highs[j],
+                        "outcome": outs[j],
+                        "expected_value": evs[j],
+                        "do_not_contact": dncs[j],
+                    }  # fmt: skip
+                    for j in range(len(costs))
+                ],
+            }  # fmt: skip
+        )
+    return out
+
+
+def decision_columns(decided: Decided) -> dict[str, Any]:
+    """Decisions as columns (one list per field), for column-form batches."""
+    bound, batch, est = decided.bound, decided.batch, decided.estimates
+    campaign = bound.campaign
+    labels = np.array(campaign.action_labels(), dtype=object)
+    rows = np.arange(len(decided))
+    k = decided.arm - 1
+    columns = {
+        "decision_id": decided.decision_ids,
+        "customer_id": decided.ids,
+        "action": labels[batch.action].tolist(),
+        "arm": labels[decided.arm].tolist(),
+        "uplift": est.tau[rows, k],
+        "uplift_low": est.low[rows, k],
+        "uplift_high": est.high[rows, k],
+        "outcome_without_contact": est.mu0,
+        "outcome_with_arm": est.mu0 + est.tau[rows, k],
+        "expected_value": batch.expected_value,
+        "do_not_contact": batch.do_not_contact,
+        "explored": batch.explored,
+        "holdout": batch.holdout,
+        "propensity": batch.propensity,
+        "reasons": [_reasons(decided, i) for i in range(len(decided))],
+    }
+    arms = {
+        str(labels[j + 1]): {
+            "uplift": np.ascontiguousarray(est.tau[:, j]),
+            "uplift_low": np.ascontiguousarray(est.low[:, j]),
+            "uplift_high": np.ascontiguousarray(est.high[:, j]),
+            "expected_value": np.ascontiguousarray(batch.ev_per_arm[:, j]),
+            "do_not_contact": np.ascontiguousarray(batch.dnc_per_arm[:, j]),
+        }
+        for j in range(len(labels) - 1)
+    }
+    return {
+        "campaign": campaign.id,
+        "model": bound.model_ref,
+        "policy_hash": campaign.hash,
+        "confidence": campaign.confidence,
+        "count": len(decided),
+        "columns": {k: _contiguous(v) for k, v in columns.items()},
+        "arms": arms,
+    }
+
+
+def ranked_list(decided: Decided) -> dict[str, Any]:
+    """The ordered contact list and the excluded candidates, JSON-ready."""
+    ranked = decided.ranked
+    assert ranked is not None, "ranked_list needs the result of rank_many"
+    bound, batch, est = decided.bound, decided.batch, decided.estimates
+    campaign = bound.campaign
+    labels = campaign.action_labels()
+    costs = campaign.costs
+    contacts = []
+    for place, i in enumerate(ranked.order.tolist(), start=1):
+        a = int(ranked.arm[i])
+        contacts.append(
+            {
+                "rank": place,
+                "customer_id": decided.ids[i],
+                "decision_id": decided.decision_ids[i],
+                "arm": labels[a],
+                "contact": not bool(ranked.holdout[i]),
+                "expected_value": float(ranked.expected_value[i]),
+                "uplift": float(est.tau[i, a - 1]),
+                "cost": float(costs[a - 1]),
+                "propensity": float(ranked.propensity[i]),
+                "explored": bool(batch.explored[i]),
+                "holdout": bool(ranked.holdout[i]),
+            }  # fmt: skip
+        )
+    excluded = [
+        {"customer_id": decided.ids[i], "decision_id": decided.decision_ids[i], "reason": r}
+        for i, r in zip(ranked.excluded.tolist(), ranked.excluded_reason, strict=True)
+    ]
+    listed_ev = ranked.expected_value[ranked.order][~ranked.holdout[ranked.order]]
+    return {
+        "campaign": campaign.id,
+        "model": bound.model_ref,
+        "policy_hash": campaign.hash,
+        "capacity": ranked.capacity,
+        "budget": ranked.budget,
+        "contacts": contacts,
+        "excluded": excluded,
+        "totals": {
+            "candidates": len(decided),
+            "contacts": int((ranked.listed & ~ranked.holdout).sum()),
+            "held_out": int(ranked.holdout.sum()),
+            "excluded": len(excluded),
+            "expected_value": float(listed_ev.sum()),
+            "cost": ranked.spend,
+        },
+    }
+
+
+def _contiguous(value: Any) -> Any:
+    return np.ascontiguousarray(value) if isinstance(value, np.ndarray) else value

@@ -1,0 +1,113 @@
+"""What a servable model must provide, and the two ways upshot provides it.
+
+A fitted :class:`~service.uplift.BootstrapUplift` predicts a whole table through
+scikit-learn; its compiled form (``service.uplift.compiled``) evaluates the same trees
+and linear terms in one numba kernel, which also makes a single customer cheap. The
+service uses the compiled form when the model can be compiled and falls back otherwise.
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+from typing import Any, Protocol
+
+import numpy as np
+import numpy.typing as npt
+
+from service.errors import BundleError
+from service.scoring.features import FeatureTable
+
+__all__ = ["Estimates", "ServableModel", "servable"]
+
+logger = logging.getLogger(__name__)
+
+Array = npt.NDArray[np.float64]
+
+
+@dataclass(frozen=True)
+class Estimates:
+    """Per-arm uplift with bounds, shape (n, n_arms), and the no-contact outcome (n,)."""
+
+    tau: Array
+    mu0: Array
+    low: Array
+    high: Array
+
+    def take(self, columns: npt.NDArray[np.intp]) -> Estimates:
+        """Keep the arm columns a campaign uses, in the campaign's order."""
+        return Estimates(self.tau[:, columns], self.mu0, self.low[:, columns],
+                         self.high[:, columns])  # fmt: skip
+
+
+class ServableModel(Protocol):
+    """A model the service can score with."""
+
+    kind: str
+
+    def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
+        """Estimates for every row of a validated table (two-sided ``confidence``)."""
+        ...
+
+    def estimate_row(self, row: dict[str, Any], confidence: float) -> Estimates:
+        """Estimates for one validated row (two-sided ``confidence``)."""
+        ...
+
+
+class _Bootstrap:
+    """Scores through the fitted scikit-learn models (always available)."""
+
+    kind = "scikit-learn"
+
+    def __init__(self, model: Any) -> None:
+        self.model = model
+
+    def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
+        tau, mu0, low, high = self.model.predict_interval(table.frame(), confidence=confidence)
+        return Estimates(_2d(tau), np.asarray(mu0, dtype=float), _2d(low), _2d(high))
+
+    def estimate_row(self, row: dict[str, Any], confidence: float) -> Estimates:
+        columns = {name: np.array([value], dtype=object) for name, value in row.items()}
+        return self.estimate(FeatureTable(columns, [[]]), confidence)
+
+
+class _Compiled:
+    """Scores through the compiled kernel (same numbers, far less overhead per call)."""
+
+    kind = "compiled"
+
+    def __init__(self, compiled: Any) -> None:
+        self.compiled = compiled
+
+    def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
+        tau, mu0, low, high = self.compiled.predict_interval(table.frame(), confidence=confidence)
+        return Estimates(_2d(tau), np.asarray(mu0, dtype=float), _2d(low), _2d(high))
+
+    def estimate_row(self, row: dict[str, Any], confidence: float) -> Estimates:
+        tau, mu0, low, high = self.compiled.predict_row(row, confidence)
+        return Estimates(
+            np.asarray(tau, dtype=float).reshape(1, -1),
+            np.asarray(mu0, dtype=float).reshape(1),
+            np.asarray(low, dtype=float).reshape(1, -1),
+            np.asarray(high, dtype=float).reshape(1, -1),
+        )
+
+
+def servable(model: Any, *, compile: bool = True) -> ServableModel:
+    """Wrap a fitted model, compiled when possible (``compile=False`` forces scikit-learn)."""
+    if compile:
+        try:
+            from service.uplift.compiled import compile_model
+        except ImportError:
+            logger.warning("the compiled scoring path is not installed; using scikit-learn")
+        else:
+            try:
+                return _Compiled(compile_model(model))
+            except BundleError as err:
+                logger.warning("model cannot be compiled (%s); using scikit-learn", err)
+    return _Bootstrap(model)
+
+
+def _2d(values: Any) -> Array:
+    array = np.asarray(values, dtype=float)
+    return array.reshape(len(array), -1) if array.ndim == 1 else array
