@@ -1,0 +1,106 @@
+"""Learner quality on simulation designs with known effects.
+
+For every learner x design: the Qini coefficient of the learner's ranking on a fresh test
+sample relative to the oracle's (ranking by the true effect) on the same sample, the
+error of the estimated effect (PEHE, root mean squared error against the true uplift),
+fit time and peak memory. Each cell runs in a fresh process so its peak resident memory
+is its own. Prints a table and writes it as JSON.
+
+    python bench/quality.py [--train 20000] [--test 50000] [--out bench/results/quality.json]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import resource
+import time
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+DESIGNS = ["groups", "groups_two_arms", "larkspur", "nw_a", "nw_b", "nw_c", "nw_d"]
+LEARNER_NAMES = ["t", "s", "x", "dr", "transformed"]
+
+
+def _cell(design: str, learner: str, n_train: int, n_test: int, seed: int) -> dict[str, Any]:
+    from service.evaluation import qini_coefficient
+    from service.simulation import simulate
+    from service.uplift import make_learner
+
+    train = simulate(design, n=n_train, random_state=seed)
+    test = simulate(design, n=n_test, random_state=seed + 1000)
+    before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    start = time.perf_counter()
+    model = make_learner(learner, random_state=seed).fit(train.X, train.y, train.treatment)
+    fit_seconds = time.perf_counter() - start
+    peak_mb = (resource.getrusage(resource.RUSAGE_SELF).ru_maxrss - before) / 1024
+    tau = model.predict(test.X)
+    order = [list(model.arms_).index(a) for a in test.arms]
+    tau = tau[:, order]
+    ratios = []
+    for j, arm in enumerate(test.arms):
+
+        def qini(score: np.ndarray, arm: Any = arm) -> float:
+            return qini_coefficient(
+                test.y, test.treatment, score, control=test.control, arm=arm, normalize=False
+            )
+
+        ratios.append(qini(tau[:, j]) / qini(test.tau[:, j]))
+    return {
+        "design": design,
+        "learner": learner,
+        "outcome": train.outcome_type,
+        "qini_vs_oracle": float(np.mean(ratios)),
+        "pehe": float(np.sqrt(np.mean((tau - test.tau) ** 2))),
+        "fit_seconds": fit_seconds,
+        "peak_mb": peak_mb,
+    }
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--train", type=int, default=20000)
+    parser.add_argument("--test", type=int, default=50000)
+    parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--designs", nargs="*", default=DESIGNS)
+    parser.add_argument("--learners", nargs="*", default=LEARNER_NAMES)
+    parser.add_argument("--out", type=Path, default=Path("bench/results/quality.json"))
+    args = parser.parse_args()
+    rows = []
+    print(f"train rows {args.train}, test rows {args.test}, seed {args.seed}, base gbm")
+    header = (
+        f"{'design':<16}{'learner':<13}{'Qini/oracle':>12}{'PEHE':>9}{'fit s':>8}{'peak MB':>9}"
+    )
+    print(header)
+    print("-" * len(header))
+    for design in args.designs:
+        for learner in args.learners:
+            with ProcessPoolExecutor(max_workers=1) as pool:
+                row = pool.submit(
+                    _cell, design, learner, args.train, args.test, args.seed
+                ).result()
+            rows.append(row)
+            print(
+                f"{design:<16}{learner:<13}{row['qini_vs_oracle']:>12.3f}{row['pehe']:>9.3f}"
+                f"{row['fit_seconds']:>8.1f}{row['peak_mb']:>9.0f}",
+                flush=True,
+            )
+    best = {}
+    for row in rows:
+        if row["outcome"] == "binary":
+            best[row["design"]] = max(best.get(row["design"], -np.inf), row["qini_vs_oracle"])
+    print("\nbest learner per binary design (goal >= 0.9 of the oracle's Qini):")
+    for design, value in best.items():
+        print(f"  {design:<16}{value:.3f}  {'ok' if value >= 0.9 else 'BELOW GOAL'}")
+    args.out.parent.mkdir(parents=True, exist_ok=True)
+    args.out.write_text(
+        json.dumps({"settings": vars(args) | {"out": str(args.out)}, "rows": rows}, indent=2)
+    )
+    print(f"\nwritten to {args.out}")
+
+
+if __name__ == "__main__":
+    main()
