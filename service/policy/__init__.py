@@ -3,17 +3,19 @@
 Everything here is a pure function of arrays and thresholds: the service loads a campaign
 file with :func:`load_campaigns`, draws deterministic uniforms with
 :func:`uniform_draws`, decides with :func:`decide` and, for contact lists, ranks with
-:func:`rank`.
+:func:`rank`. :func:`uniform_draw` and :func:`decide_one` are the same for one customer
+without NumPy overhead (the low-latency scoring path).
 """
 
 from __future__ import annotations
 
 from service.policy.campaign import NO_CONTACT, ArmCost, Campaign, policy_hash
 from service.policy.decide import REASONS, DecisionBatch, decide
-from service.policy.draws import Draws, uniform_draws, uniform_hash
+from service.policy.draws import Draws, uniform_draw, uniform_draws, uniform_hash
 from service.policy.exploration import choice_probabilities, explore_pick, final_probabilities
 from service.policy.loader import load_campaigns, parse_campaigns
 from service.policy.rank import EXCLUSION_REASONS, RankResult, rank
+from service.policy.single import Decision, decide_one, decision_row
 from service.policy.value import (
     do_not_contact_flags,
     expected_values,
@@ -27,11 +29,14 @@ __all__ = [
     "REASONS",
     "ArmCost",
     "Campaign",
+    "Decision",
     "DecisionBatch",
     "Draws",
     "RankResult",
     "choice_probabilities",
     "decide",
+    "decide_one",
+    "decision_row",
     "do_not_contact_flags",
     "expected_values",
     "explore_pick",
@@ -42,6 +47,7 @@ __all__ = [
     "policy_hash",
     "rank",
     "two_sided_level",
+    "uniform_draw",
     "uniform_draws",
     "uniform_hash",
 ]

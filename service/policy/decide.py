@@ -136,7 +136,7 @@ def decide(
     (epsilon-greedy); Horvitz & Thompson (1952), JASA 47(260) (why the exact probability
     of the action taken is logged: inverse-probability weighting needs it).
     """
-    _check_rates(exploration, holdout, margin)
+    check_rates(exploration, holdout, margin)
     tau, high, mu0, values_arr, costs, opted_out, u = _check_arrays(
         tau, low, high, mu0, values, costs, opted_out, draws
     )
@@ -202,13 +202,28 @@ def _reasons(
     for bit, flag in enumerate(flags):
         codes |= flag.astype(np.int64) << bit
     table = {
-        int(code): [name for bit, name in enumerate(_ORDER) if code >> bit & 1]
+        int(code): reason_list(*(bool(code >> bit & 1) for bit in range(len(_ORDER))))
         for code in np.unique(codes)
     }
     return [list(table[code]) for code in codes.tolist()]
 
 
-def _check_rates(exploration: float, holdout: float, margin: float) -> None:
+def reason_list(
+    opted_out: bool,
+    dnc_all: bool,
+    dnc_partial: bool,
+    no_value: bool,
+    best_ev: bool,
+    explored: bool,
+    withheld: bool,
+) -> list[str]:
+    """Reason codes of one decision from its flags, in the order of :data:`REASONS`."""
+    flags = (opted_out, dnc_all, dnc_partial, no_value, best_ev, explored, withheld)
+    return [name for name, flag in zip(_ORDER, flags, strict=True) if flag]
+
+
+def check_rates(exploration: float, holdout: float, margin: float) -> None:
+    """Raise PolicyError unless both rates lie in [0, 1) and the margin is finite, >= 0."""
     for name, rate in (("exploration", exploration), ("holdout", holdout)):
         if not (math.isfinite(rate) and 0.0 <= rate < 1.0):
             raise PolicyError(f"{name}={rate!r} must lie in [0, 1); fix the campaign policy.")
@@ -240,6 +255,8 @@ def _check_arrays(
     mu0 = _finite("mu0", mu0, 1, n)
     value_arr = np.broadcast_to(np.asarray(values, dtype=np.float64), (n,))
     value_arr = _finite("values", value_arr, 1, n)
+    if (value_arr <= 0).any():
+        raise DataError("values must be > 0 (the value of a conversion); fix the request.")
     costs = _finite("costs", costs, 1, k)
     flags = np.asarray(opted_out)
     if flags.shape != (n,) or flags.dtype != np.bool_:
