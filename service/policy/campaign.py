@@ -53,10 +53,14 @@ class Campaign:
     dnc_margin: float = 0.0
     suppression: frozenset[str] = frozenset()
     hash: str = field(init=False, repr=False, compare=False)
+    _costs: npt.NDArray[np.float64] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         _check_campaign(self)
         object.__setattr__(self, "hash", policy_hash(self))
+        costs = np.array([arm.cost for arm in self.arms], dtype=np.float64)
+        costs.setflags(write=False)  # shared by every request; nobody may change it
+        object.__setattr__(self, "_costs", costs)
 
     @property
     def arm_names(self) -> tuple[str, ...]:
@@ -65,8 +69,8 @@ class Campaign:
 
     @property
     def costs(self) -> npt.NDArray[np.float64]:
-        """Contact cost per arm, aligned with :attr:`arm_names`."""
-        return np.array([arm.cost for arm in self.arms], dtype=np.float64)
+        """Contact cost per arm, aligned with :attr:`arm_names` (read-only)."""
+        return self._costs
 
     def action_labels(self) -> tuple[str, ...]:
         """Labels of the actions 0..K: ``"none"`` then the arms."""
