@@ -90,11 +90,6 @@ class FeatureEncoder:
         self.specs = specs
         self.names = [s.name for s in specs]
         self.categorical_mask = np.array([s.kind == "categorical" for s in specs], dtype=bool)
-        self._lookup = {
-            s.name: {c: float(i) for i, c in enumerate(s.categories)}
-            for s in specs
-            if s.kind == "categorical"
-        }
 
     @classmethod
     def fit(cls, frame: pd.DataFrame) -> FeatureEncoder:
@@ -120,12 +115,21 @@ class FeatureEncoder:
         for j, spec in enumerate(self.specs):
             column = frame[spec.name]
             if spec.kind == "categorical":
-                codes = column.astype(object).where(column.notna(), None)
-                lookup = self._lookup[spec.name]
-                out[:, j] = [np.nan if v is None else lookup.get(str(v), np.nan) for v in codes]
+                out[:, j] = _codes(column, spec.categories)
             else:
                 out[:, j] = _numeric(spec.name, column)
         return out
+
+
+def _codes(column: pd.Series, categories: tuple[str, ...]) -> np.ndarray:
+    """Category codes as floats; missing and unseen categories become NaN."""
+    present = column.notna().to_numpy()
+    out = np.full(len(column), np.nan)
+    labels = column[present].astype(str)
+    codes = pd.Index(categories).get_indexer(labels).astype(float)
+    codes[codes < 0] = np.nan
+    out[present] = codes
+    return out
 
 
 def _numeric(name: str, column: pd.Series) -> np.ndarray:
