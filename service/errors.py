@@ -16,6 +16,7 @@ __all__ = [
     "ConflictError",
     "PolicyError",
     "ConfigError",
+    "DecisionLogError",
     "OverlapWarning",
 ]
 
@@ -54,6 +55,10 @@ class PolicyError(UpshotError, ValueError):
 
 class ConfigError(UpshotError, ValueError):
     """A setting is missing or unsafe."""
+
+
+class DecisionLogError(UpshotError):
+    """The decision log cannot be written or read; nothing was acknowledged."""
 
 
 class OverlapWarning(UserWarning):

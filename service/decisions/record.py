@@ -69,6 +69,7 @@ def decision_id(
     model: str | tuple[str, str],
     features: Mapping[str, Any],
     value: float,
+    context: str = "score",
 ) -> str:
     """Deterministic id of a decision: the same request always maps to the same id.
 
@@ -76,11 +77,16 @@ def decision_id(
     the customer id as text, the policy hash, the model (``"name/version"`` or a
     ``(name, version)`` pair, which is joined the same way), the features as scored and
     the value. A retried request therefore gets the id of its first attempt, and the log
-    keeps only that first record.
+    keeps only that first record. ``context`` separates decisions that share those
+    inputs but not their meaning: ``"score"`` for a single or batch score, and for a
+    ranked list ``"rank:"`` plus a hash of the list request (candidates, capacity,
+    budget), since a place in a list depends on the other candidates.
     """
     if isinstance(model, tuple):
         model = "/".join(model)
     payload = [campaign, str(customer_id), policy_hash, model, dict(features), float(value)]
+    if context != "score":  # ids of plain scores stay as they were
+        payload.append(context)
     return hashlib.blake2b(orjson.dumps(payload, option=_JSON), digest_size=16).hexdigest()
 
 
