@@ -126,7 +126,7 @@ def _codes(column: pd.Series, categories: tuple[str, ...]) -> np.ndarray:
     present = column.notna().to_numpy()
     out = np.full(len(column), np.nan)
     labels = column[present].astype(str)
-    codes = pd.Index(categories).get_indexer(labels).astype(float)
+    codes = pd.Index(categories).get_indexer(pd.Index(labels)).astype(float)
     codes[codes < 0] = np.nan
     out[present] = codes
     return out
