@@ -57,9 +57,10 @@ def read_table(path: Path | str) -> pd.DataFrame:
         ) from None
     except (pd.errors.ParserError, UnicodeDecodeError, OSError, ValueError) as err:
         reason = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
+        hint = "UTF-8 encoded, " if kind != "parquet" else ""
         raise DataError(
-            f"Cannot read {path} as {kind.upper()} ({reason}); check that the file is a "
-            f"valid {kind.upper()} file, UTF-8 encoded, and not truncated."
+            f"Cannot read {path} as {kind.upper()} ({reason}); check that it is a complete "
+            f"{kind.upper()} file, {hint}written by the tool that exported it."
         ) from err
     if len(frame) == 0:
         raise DataError(

@@ -44,9 +44,9 @@ def _plain(value: Any) -> Any:
     return value.item() if isinstance(value, np.generic) else value
 
 
-def _row(series: pd.Series, mask: pd.Series) -> int:
-    """1-based data row (header not counted) of the first True in ``mask``."""
-    return int(np.flatnonzero(mask.to_numpy())[0]) + 1
+def _row(series: pd.Series, mask: pd.Series) -> str:
+    """Where the first True in ``mask`` is, for messages (1-based, header not counted)."""
+    return f"row {int(np.flatnonzero(mask.to_numpy())[0]) + 1} after the header"
 
 
 def _require(frame: pd.DataFrame, column: str, role: str, source: str) -> None:
@@ -112,7 +112,7 @@ def _numeric_feature(name: str, series: pd.Series) -> pd.Series:
     if share >= _NUMERIC_MAJORITY:
         raise DataError(
             f"Column {name!r} holds numbers but also text in {int(text.sum())} row(s), e.g. "
-            f"{series[text].iloc[0]!r} in data row {_row(series, text)}; correct those "
+            f"{series[text].iloc[0]!r} in {_row(series, text)}; correct those "
             "cells or leave them empty (empty means missing)."
         )
     return series
@@ -123,7 +123,7 @@ def _treatment(series: pd.Series, column: str, control: Any) -> tuple[np.ndarray
     if missing.any():
         raise DataError(
             f"Treatment column {column!r} is empty in {int(missing.sum())} row(s) (first: "
-            f"data row {_row(series, missing)}); fill in the group each customer was in or "
+            f"{_row(series, missing)}); fill in the group each customer was in or "
             "drop those rows."
         )
     values = np.array([_plain(v) for v in series.to_numpy(dtype=object)], dtype=object)
@@ -170,13 +170,13 @@ def _outcome(series: pd.Series, column: str) -> tuple[np.ndarray, str]:
     if missing.any():
         raise DataError(
             f"Outcome column {column!r} is empty in {int(missing.sum())} row(s) (first: "
-            f"data row {_row(series, missing)}); drop those rows or record the outcome."
+            f"{_row(series, missing)}); drop those rows or record the outcome."
         )
     parsed = pd.to_numeric(series, errors="coerce")
     text = parsed.isna()
     if text.any():
         raise DataError(
-            f"Outcome column {column!r} holds text, e.g. {series[text].iloc[0]!r} in data row "
+            f"Outcome column {column!r} holds text, e.g. {series[text].iloc[0]!r} in "
             f"{_row(series, text)}; the outcome must be a number: 1/0 for a response, or an "
             "amount. Recode it."
         )

@@ -21,3 +21,11 @@ def campaign() -> pd.DataFrame:
     from service.simulation import simulate
 
     return simulate("larkspur", 800, random_state=1).to_frame()
+
+
+@pytest.fixture(scope="session")
+def tiny() -> pd.DataFrame:
+    """Just enough rows per group for 3 folds: for tests about files, not about fit."""
+    from service.simulation import simulate
+
+    return simulate("larkspur", 300, random_state=5).to_frame()

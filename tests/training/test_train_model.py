@@ -116,32 +116,32 @@ def test_saved_predictions_are_truly_out_of_fold(result: Any, campaign: pd.DataF
 
 
 def test_each_training_writes_a_new_version_and_numbers_are_never_reused(
-    tmp_path: Path, campaign: pd.DataFrame
+    tmp_path: Path, tiny: pd.DataFrame
 ) -> None:
     root = tmp_path / "models"
-    assert _train(campaign, root).version == "v0001"
-    assert _train(campaign, root).version == "v0002"
+    assert _train(tiny, root).version == "v0001"
+    assert _train(tiny, root).version == "v0002"
     shutil.rmtree(root / "tea" / "v0002")
-    assert _train(campaign, root).version == "v0003"
+    assert _train(tiny, root).version == "v0003"
     assert ModelRegistry(root).versions("tea") == ["v0001", "v0003"]
 
 
 def test_failure_while_writing_leaves_no_partial_bundle(
-    tmp_path: Path, campaign: pd.DataFrame, monkeypatch: pytest.MonkeyPatch
+    tmp_path: Path, tiny: pd.DataFrame, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     root = tmp_path / "models"
-    _train(campaign, root)
+    _train(tiny, root)
 
     def broken(*args: object, **kwargs: object) -> None:
         raise RuntimeError("disk full while drawing the report")
 
     monkeypatch.setattr(train_module, "write_report", broken)
     with pytest.raises(RuntimeError, match="disk full"):
-        _train(campaign, root)
+        _train(tiny, root)
     assert sorted(p.name for p in (root / "tea").iterdir()) == [".lock", "history.jsonl", "v0001"]
     with pytest.raises(RuntimeError, match="disk full"):
         train_model(
-            campaign,
+            tiny,
             treatment="treatment",
             outcome="renewed",
             name="fresh",
