@@ -91,13 +91,16 @@ def create_app(
         description=_DESCRIPTION,
         lifespan=lifespan,
         default_response_class=OrjsonResponse,
+        # Prometheus metrics are ours (metrics.py); FastAPI's OpenTelemetry hooks would
+        # only add per-request work.
+        telemetry={"tracing": False, "metrics": False, "logs": False, "operation_spans": False},
     )
     app.state.service = state
     app.state.metrics = metrics_
     install_error_handlers(app)
     app.add_middleware(BodySizeLimit, max_bytes=settings.max_body_bytes)
     app.add_middleware(MetricsMiddleware, metrics=metrics_)
-    for module in (score, rank, models, campaigns, admin, health, metrics):
+    for module in (health, score, rank, models, campaigns, admin, metrics):
         app.include_router(module.router)
     return app
 

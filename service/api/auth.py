@@ -14,6 +14,7 @@ import secrets
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from service.api.errors import ApiError
 from service.config import ROLES, ApiKey
 
 __all__ = ["KeyRing", "Principal", "hash_key", "new_key"]
@@ -74,3 +75,23 @@ class KeyRing:
             if hmac.compare_digest(known, digest):
                 return principal
         return None
+
+    def require(self, authorization: str | None, role: str) -> Principal:
+        """The caller's principal, or an :class:`ApiError`: 401 without a valid key, 403
+        when the key's role does not allow ``role``."""
+        principal = self.authenticate(authorization)
+        if principal is None:
+            raise ApiError(
+                401,
+                "unauthorized",
+                "A valid API key is required; send it as `Authorization: Bearer <key>`.",
+                headers={"WWW-Authenticate": "Bearer"},
+            )
+        if not principal.allows(role):
+            raise ApiError(
+                403,
+                "forbidden",
+                f"API key {principal.name!r} has role {principal.role!r}, but this endpoint "
+                f"needs {role!r}; use a key with that role.",
+            )
+        return principal

@@ -1,4 +1,8 @@
-"""Request dependencies as ``Annotated`` aliases; tests swap them with overrides."""
+"""Request dependencies as ``Annotated`` aliases; tests swap them with overrides.
+
+All are ``async def``: FastAPI runs a plain ``def`` dependency in a worker thread, a
+thread hop per dependency per request.
+"""
 
 from __future__ import annotations
 
@@ -8,7 +12,6 @@ from fastapi import Depends, Request, Security
 from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 
 from service.api.auth import Principal
-from service.api.errors import ApiError
 from service.api.state import ServiceState
 from service.decisions import DecisionLog
 from service.registry import ModelRegistry
@@ -28,10 +31,9 @@ __all__ = [
 ]
 
 _bearer = HTTPBearer(auto_error=False, description="An API key: `Authorization: Bearer <key>`.")
-_CHALLENGE = {"WWW-Authenticate": "Bearer"}
 
 
-def get_state(request: Request) -> ServiceState:
+async def get_state(request: Request) -> ServiceState:
     """The state the app built at start-up."""
     state: ServiceState = request.app.state.service
     return state
@@ -40,17 +42,17 @@ def get_state(request: Request) -> ServiceState:
 StateDep = Annotated[ServiceState, Depends(get_state)]
 
 
-def get_catalog(state: StateDep) -> Catalog:
+async def get_catalog(state: StateDep) -> Catalog:
     """The current campaign catalog (one snapshot per request)."""
     return state.catalog
 
 
-def get_log(state: StateDep) -> DecisionLog:
+async def get_log(state: StateDep) -> DecisionLog:
     """The decision log."""
     return state.log
 
 
-def get_registry(state: StateDep) -> ModelRegistry:
+async def get_registry(state: StateDep) -> ModelRegistry:
     """The model registry."""
     return state.registry
 
@@ -64,25 +66,10 @@ def _authenticate(
     state: ServiceState, credentials: HTTPAuthorizationCredentials | None, role: str
 ) -> Principal:
     header = f"{credentials.scheme} {credentials.credentials}" if credentials else None
-    principal = state.keyring.authenticate(header)
-    if principal is None:
-        raise ApiError(
-            401,
-            "unauthorized",
-            "A valid API key is required; send it as `Authorization: Bearer <key>`.",
-            headers=_CHALLENGE,
-        )
-    if not principal.allows(role):
-        raise ApiError(
-            403,
-            "forbidden",
-            f"API key {principal.name!r} has role {principal.role!r}, but this endpoint "
-            f"needs {role!r}; use a key with that role.",
-        )
-    return principal
+    return state.keyring.require(header, role)
 
 
-def require_scorer(
+async def require_scorer(
     state: StateDep,
     credentials: Annotated[HTTPAuthorizationCredentials | None, Security(_bearer)],
 ) -> Principal:
@@ -90,7 +77,7 @@ def require_scorer(
     return _authenticate(state, credentials, "scorer")
 
 
-def require_admin(
+async def require_admin(
     state: StateDep,
     credentials: Annotated[HTTPAuthorizationCredentials | None, Security(_bearer)],
 ) -> Principal:

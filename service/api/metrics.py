@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Sequence
+from typing import Any
 
 from prometheus_client import CollectorRegistry, Counter, Gauge, Histogram, generate_latest
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
@@ -59,6 +60,7 @@ class Metrics:
             ["campaign", "model", "version"], registry=self.registry,
         )  # fmt: skip
         self._counts: dict[str, tuple[int, int]] = {}
+        self._decision_children: dict[tuple[str, str, str], Any] = {}
 
     def record_decisions(
         self, campaign: str, mode: str, actions: Sequence[str], explored: int, held_out: int
@@ -68,7 +70,11 @@ class Metrics:
         for action in actions:
             tally[action] = tally.get(action, 0) + 1
         for action, count in tally.items():
-            self.decisions.labels(campaign, mode, action).inc(count)
+            key = (campaign, mode, action)
+            child = self._decision_children.get(key)
+            if child is None:
+                child = self._decision_children[key] = self.decisions.labels(*key)
+            child.inc(count)
         if explored:
             self.explored.labels(campaign).inc(explored)
         if held_out:
@@ -95,6 +101,8 @@ class MetricsMiddleware:
     def __init__(self, app: ASGIApp, metrics: Metrics) -> None:
         self.app = app
         self.metrics = metrics
+        # Label lookups take a lock and build a tuple; keep the children per label set.
+        self._children: dict[tuple[str, str, int], tuple[Any, Any]] = {}
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if scope["type"] != "http":
@@ -113,6 +121,12 @@ class MetricsMiddleware:
             await self.app(scope, receive, send_status)
         finally:
             route = scope.get("route")
-            label = getattr(route, "path", "unmatched")
-            self.metrics.requests.labels(label, scope["method"], str(status)).inc()
-            self.metrics.latency.labels(label).observe(time.perf_counter() - start)
+            key = (getattr(route, "path", "unmatched"), scope["method"], status)
+            children = self._children.get(key)
+            if children is None:
+                children = self._children[key] = (
+                    self.metrics.requests.labels(key[0], key[1], str(status)),
+                    self.metrics.latency.labels(key[0]),
+                )
+            children[0].inc()
+            children[1].observe(time.perf_counter() - start)

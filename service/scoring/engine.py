@@ -25,6 +25,7 @@ from service.policy import DecisionBatch, RankResult, decide, rank, two_sided_le
 from service.scoring.catalog import BoundCampaign
 from service.scoring.estimates import Estimates
 from service.scoring.features import FeatureTable, InvalidFeatures
+from service.scoring.single import decide_row
 
 __all__ = [
     "Decided",
@@ -75,10 +76,17 @@ def decide_one(
 ) -> Decided:
     """Decide for one customer (the compiled single-row path when available)."""
     clean, reasons = bound.schema.check_row(features)
-    level = two_sided_level(bound.campaign.confidence)
-    estimates = bound.model.estimate_row(clean, level).take(bound.arm_columns)
+    campaign = bound.campaign
+    level = two_sided_level(campaign.confidence)
+    est = bound.model.estimate_row(clean, level).take(bound.arm_columns)
     values = _values(bound, [value])
-    return _decide(bound, [customer_id], [clean], values, estimates, [reasons], None)
+    batch = decide_row(
+        est.tau[0].tolist(), est.low[0].tolist(), est.high[0].tolist(), float(est.mu0[0]),
+        float(values[0]), campaign.costs.tolist(), customer_id in campaign.suppression,
+        uniform_draws(campaign.salt, campaign.id, [customer_id]),
+        exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
+    )  # fmt: skip
+    return _finish(bound, [customer_id], [clean], values, est, [reasons], batch, None)
 
 
 def decide_many(
@@ -138,12 +146,26 @@ def _decide(
     ranking: tuple[int | None, float | None, str] | None,
 ) -> Decided:
     campaign = bound.campaign
-    costs = campaign.costs
     batch = decide(
-        est.tau, est.low, est.high, est.mu0, values, costs,
+        est.tau, est.low, est.high, est.mu0, values, campaign.costs,
         campaign.opted_out(ids), uniform_draws(campaign.salt, campaign.id, ids),
         exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
     )  # fmt: skip
+    return _finish(bound, ids, features, values, est, input_reasons, batch, ranking)
+
+
+def _finish(
+    bound: BoundCampaign,
+    ids: list[str],
+    features: list[dict[str, Any]],
+    values: npt.NDArray[np.float64],
+    est: Estimates,
+    input_reasons: list[list[str]],
+    batch: DecisionBatch,
+    ranking: tuple[int | None, float | None, str] | None,
+) -> Decided:
+    campaign = bound.campaign
+    costs = campaign.costs
     ranked = None
     if ranking is not None:
         ranked = rank(batch, ids, capacity=ranking[0], budget=ranking[1], costs=costs)

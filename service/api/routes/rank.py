@@ -7,29 +7,27 @@ import asyncio
 from fastapi import APIRouter
 
 from service.api.candidates import candidates, check_batch_size
-from service.api.deps import CatalogDep, LogDep, ScorerKey, StateDep
+from service.api.deps import ScorerKey, StateDep
 from service.api.responses import OrjsonResponse
 from service.api.routes.score import ERRORS, THREAD_ROWS, count_decisions
-from service.api.routing import OrjsonRoute
+from service.api.routing import ScoringRoute
 from service.api.schemas import RankedList, RankRequest
 from service.scoring import Decided, commit, rank_many, ranked_list
 
-router = APIRouter(prefix="/v1/rank", tags=["scoring"], route_class=OrjsonRoute)
+router = APIRouter(prefix="/v1/rank", tags=["scoring"], route_class=ScoringRoute)
 
 
 @router.post("", response_model=RankedList, responses=ERRORS)
-async def rank(
-    body: RankRequest, catalog: CatalogDep, log: LogDep, state: StateDep, _: ScorerKey
-) -> OrjsonResponse:
+async def rank(body: RankRequest, state: StateDep, _: ScorerKey) -> OrjsonResponse:
     """Order the candidates by expected value and cut the list; every decision is logged."""
     n = check_batch_size(body, state.settings.max_batch)
-    bound = catalog.get(body.campaign)
+    bound = state.catalog.get(body.campaign)
 
     def work() -> Decided:
         ids, table, values = candidates(body, bound.schema)
         return rank_many(bound, ids, table, values, capacity=body.capacity, budget=body.budget)
 
     decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await commit(log, decided)
+    await commit(state.log, decided)
     count_decisions(state.metrics, decided)
     return OrjsonResponse(ranked_list(decided))

@@ -7,10 +7,10 @@ import asyncio
 from fastapi import APIRouter
 
 from service.api.candidates import candidates, check_batch_size
-from service.api.deps import CatalogDep, LogDep, ScorerKey, StateDep
+from service.api.deps import ScorerKey, StateDep
 from service.api.metrics import Metrics
 from service.api.responses import OrjsonResponse
-from service.api.routing import OrjsonRoute
+from service.api.routing import ScoringRoute
 from service.api.schemas import (
     BatchDecisions,
     BatchScoreRequest,
@@ -28,7 +28,7 @@ from service.scoring import (
     decision_rows,
 )
 
-router = APIRouter(prefix="/v1/score", tags=["scoring"], route_class=OrjsonRoute)
+router = APIRouter(prefix="/v1/score", tags=["scoring"], route_class=ScoringRoute)
 
 ERRORS: dict[int | str, dict[str, object]] = {
     status: {"model": ErrorBody} for status in (401, 403, 404, 413, 422, 503)
@@ -38,32 +38,28 @@ THREAD_ROWS = 2000
 
 
 @router.post("", response_model=Decision, responses=ERRORS)
-async def score(
-    body: ScoreRequest, catalog: CatalogDep, log: LogDep, state: StateDep, _: ScorerKey
-) -> OrjsonResponse:
+async def score(body: ScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResponse:
     """Decide whether and how to contact one customer; the decision is logged first."""
-    bound = catalog.get(body.campaign)
+    bound = state.catalog.get(body.campaign)
     customer = body.customer
     decided = decide_one(bound, customer.id, customer.features, customer.value)
-    await commit(log, decided)
+    await commit(state.log, decided)
     count_decisions(state.metrics, decided)
     return OrjsonResponse(decision_rows(decided)[0])
 
 
 @router.post("/batch", response_model=BatchDecisions | DecisionColumns, responses=ERRORS)
-async def score_batch(
-    body: BatchScoreRequest, catalog: CatalogDep, log: LogDep, state: StateDep, _: ScorerKey
-) -> OrjsonResponse:
+async def score_batch(body: BatchScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResponse:
     """Decide for many customers; column-form requests get column-form answers."""
     n = check_batch_size(body, state.settings.max_batch)
-    bound = catalog.get(body.campaign)
+    bound = state.catalog.get(body.campaign)
 
     def work() -> Decided:
         ids, table, values = candidates(body, bound.schema)
         return decide_many(bound, ids, table, values)
 
     decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await commit(log, decided)
+    await commit(state.log, decided)
     count_decisions(state.metrics, decided)
     if body.columns is not None:
         return OrjsonResponse(decision_columns(decided))
