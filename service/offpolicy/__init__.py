@@ -7,11 +7,13 @@ observed reward; a target policy is an (n, 1 + K) matrix of action probabilities
 
 * :func:`evaluate_policy`: IPS, self-normalised IPS and doubly robust value of a target
   policy with intervals, Kish's effective sample size and a support check.
+* :func:`compare_policies`: the paired difference in value of two target policies.
 * :func:`realized_lift`: what the logged policy delivered against its randomized control.
 """
 
 from __future__ import annotations
 
+from service.offpolicy.compare import compare_policies
 from service.offpolicy.estimators import (
     Estimate,
     critical_value,
@@ -40,6 +42,7 @@ __all__ = [
     "Support",
     "TargetedLift",
     "check_support",
+    "compare_policies",
     "critical_value",
     "dr_estimate",
     "effective_sample_size",

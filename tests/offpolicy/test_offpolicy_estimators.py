@@ -8,13 +8,14 @@ import warnings
 import numpy as np
 import pytest
 import statsmodels.api as sm
-from conftest import COSTS, VALUE, logged_run
+from offpolicy_sim import COSTS, VALUE, logged_run
 from statsmodels.stats.weightstats import DescrStatsW
 
 import service.offpolicy as offpolicy
 from service.errors import DataError, OverlapWarning
 from service.offpolicy import (
     check_support,
+    compare_policies,
     dr_estimate,
     effective_sample_size,
     evaluate_policy,
@@ -150,3 +151,19 @@ def test_intervals_cover_the_true_policy_value_over_repeated_logs() -> None:
     coverage = {k: v / reps for k, v in hits.items()}
     # 200 draws: a true 95% coverage falls below 0.90 with probability < 0.1%.
     assert min(coverage.values()) >= 0.90, coverage
+
+
+def test_paired_difference_of_two_policies(run) -> None:
+    a = one_hot(np.where(run.noisy_tau[:, 0] > 0.05, 1, 0), 3)
+    b = one_hot(np.where(run.noisy_tau[:, 0] > 0.07, 1, 0), 3)
+    diff = compare_policies(a, b, run.action, run.probs, run.y, reward_model=run.q)
+    one = evaluate_policy(a, run.action, run.probs, run.y, reward_model=run.q, warn=False)
+    two = evaluate_policy(b, run.action, run.probs, run.y, reward_model=run.q, warn=False)
+    for method, x, y in (("ips", one.ips, two.ips), ("snips", one.snips, two.snips)):
+        assert diff[method].value == pytest.approx(x.value - y.value)
+        # The policies agree on most rows, so pairing narrows the interval a lot.
+        assert diff[method].std_error < 0.8 * math.hypot(x.std_error, y.std_error)
+    assert one.dr is not None and two.dr is not None
+    assert diff["dr"].value == pytest.approx(one.dr.value - two.dr.value)
+    same = compare_policies(a, a, run.action, run.probs, run.y, reward_model=run.q)
+    assert all(e.value == 0.0 and e.std_error == 0.0 for e in same.values())

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import COSTS, VALUE, logged_run
+from offpolicy_sim import COSTS, VALUE, logged_run
 from statsmodels.stats.proportion import confint_proportions_2indep
 from statsmodels.stats.weightstats import CompareMeans, DescrStatsW
 

@@ -1,0 +1,123 @@
+"""A small world for the loop tests: a trained Larkspur Tea Club model (invented demo
+data), a campaign file, a decision log, and simulated days with known truth."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from service.decisions import DecisionLog
+from service.decisions.outcomes import Outcome, OutcomeStore
+from service.registry import ModelRegistry
+from service.scoring import Catalog, bind_campaigns, decide_many
+from service.simulation import SimulatedCampaign, simulate
+from service.training import train_model
+
+CAMPAIGN = "renewal"
+VALUE = 40.0
+COSTS = {"email": 0.40, "call": 3.50}
+
+CAMPAIGN_TOML = """
+[campaigns.renewal]
+model = "larkspur"
+value = 40.0
+exploration = {exploration}
+holdout = {holdout}
+capacity = 500
+confidence = 0.90
+salt = "loop-test"
+suppression = ["D1-LTC-000007"]
+
+[campaigns.renewal.arms]
+email = {{ cost = 0.40 }}
+call = {{ cost = 3.50 }}
+"""
+
+
+def write_campaigns(path: Path, *, exploration: float = 0.2, holdout: float = 0.2) -> Path:
+    """The campaign file of the loop tests."""
+    path.write_text(CAMPAIGN_TOML.format(exploration=exploration, holdout=holdout))
+    return path
+
+
+def train_first_model(models_dir: Path, *, n: int = 4000, seed: int = 1) -> str:
+    """Train and promote the first model on a randomized campaign; return its version."""
+    frame = simulate("larkspur", n, random_state=seed).to_frame()
+    result = train_model(
+        frame, treatment="treatment", outcome="renewed", control="none", learner="t",
+        base="linear", name="larkspur", models_dir=models_dir, n_bootstrap=5, n_splits=3,
+    )  # fmt: skip
+    ModelRegistry(models_dir).promote("larkspur", result.version, actor="test", reason="first")
+    return result.version
+
+
+@dataclass(frozen=True)
+class Day:
+    """One simulated day: the customers, the truth, and what the service decided."""
+
+    sim: SimulatedCampaign
+    ids: list[str]
+    decision_ids: list[str]
+    action: np.ndarray  # 0 none, 1 email, 2 call (campaign arm order)
+    chosen: np.ndarray  # action before holdout
+    probs: np.ndarray
+    outcome: np.ndarray
+
+
+def customers(sim: SimulatedCampaign, day: int) -> tuple[list[str], dict[str, list[Any]]]:
+    """Ids unique to the day and the feature columns as JSON values (None for missing)."""
+    assert sim.ids is not None
+    ids = [f"D{day}-{i}" for i in sim.ids]
+    columns = {
+        name: [None if _missing(v) else _plain(v) for v in sim.X[name].tolist()]
+        for name in sim.X.columns
+    }
+    return ids, columns
+
+
+def _missing(value: Any) -> bool:
+    return value is None or (isinstance(value, float) and np.isnan(value))
+
+
+def _plain(value: Any) -> Any:
+    return value.item() if hasattr(value, "item") else value
+
+
+def draw_outcomes(sim: SimulatedCampaign, action: np.ndarray, seed: int) -> np.ndarray:
+    """Outcomes drawn from the true law of each customer under the action taken."""
+    rng = np.random.default_rng(seed)
+    expected = sim.expected_outcomes()  # columns none, email, call (campaign order)
+    return (rng.random(len(action)) < expected[np.arange(len(action)), action]).astype(float)
+
+
+def run_day_in_process(
+    catalog: Catalog, log: DecisionLog, store: OutcomeStore, day: int, n: int
+) -> Day:
+    """Score a day's customers through the scoring engine, log them, post outcomes."""
+    sim = simulate("larkspur", n, random_state=100 + day)
+    ids, columns = customers(sim, day)
+    bound = catalog.get(CAMPAIGN)
+    table = bound.schema.table_from_columns(columns, n)
+    decided = decide_many(bound, ids, table, None)
+    log.append_sync(decided.records)
+    batch = decided.batch
+    y = draw_outcomes(sim, batch.action, seed=200 + day)
+    store.record([Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)])
+    return Day(sim, ids, decided.decision_ids, batch.action, batch.chosen, batch.action_probs, y)
+
+
+def bind(models_dir: Path, campaigns_file: Path) -> Catalog:
+    """The campaign catalog bound to the registry's champions (scikit-learn path)."""
+    from service.policy import load_campaigns
+
+    return bind_campaigns(ModelRegistry(models_dir), load_campaigns(campaigns_file), compile=False)
+
+
+def true_policy_value(sim: SimulatedCampaign, target: np.ndarray) -> float:
+    """True net value per decision of a policy given as (n, 3) action probabilities."""
+    costs = np.array([0.0, COSTS["email"], COSTS["call"]])
+    net = VALUE * sim.expected_outcomes() - costs
+    return float((target * net).sum(axis=1).mean())
