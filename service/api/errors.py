@@ -20,6 +20,7 @@ from service.errors import (
     ConfigError,
     ConflictError,
     DataError,
+    DecisionLogError,
     NotFittedError,
     NotFoundError,
     PolicyError,
@@ -40,6 +41,7 @@ _BY_CLASS: dict[type[UpshotError], tuple[int, str]] = {
     RegistryError: (409, "registry_conflict"),
     BundleError: (503, "model_unavailable"),
     NotFittedError: (503, "model_unavailable"),
+    DecisionLogError: (503, "decision_log_unavailable"),
     ConfigError: (500, "config_error"),
 }
 

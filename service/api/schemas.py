@@ -45,7 +45,7 @@ FeatureValue = float | int | str | bool | None
 
 CustomerId = Annotated[str, Field(min_length=1, max_length=256)]
 _Name = Annotated[str, Field(min_length=1, max_length=200)]
-_Value = Annotated[float, Field(ge=0, allow_inf_nan=False)]
+_Value = Annotated[float, Field(gt=0, allow_inf_nan=False)]
 
 
 class _Strict(BaseModel):

@@ -20,6 +20,7 @@ from service.scoring.catalog import (
 )
 from service.scoring.engine import (
     Decided,
+    Single,
     commit,
     decide_many,
     decide_one,
@@ -35,6 +36,7 @@ __all__ = [
     "BoundCampaign",
     "Catalog",
     "Decided",
+    "Single",
     "Estimates",
     "FeatureSchema",
     "FeatureTable",

@@ -38,10 +38,19 @@ class BoundCampaign:
     schema: FeatureSchema
     arm_columns: npt.NDArray[np.intp]
     outcome_type: str
+    arm_index: list[int] = field(init=False)
+    cost_list: list[float] = field(init=False)
+    labels: tuple[str, ...] = field(init=False)
+    model_ref: dict[str, str] = field(init=False)
 
-    @property
-    def model_ref(self) -> dict[str, str]:
-        return {"name": self.bundle.name, "version": self.bundle.version}
+    def __post_init__(self) -> None:
+        # Plain-Python copies for the single-customer path, which avoids NumPy.
+        object.__setattr__(self, "arm_index", self.arm_columns.tolist())
+        object.__setattr__(self, "cost_list", self.campaign.costs.tolist())
+        object.__setattr__(self, "labels", self.campaign.action_labels())
+        object.__setattr__(
+            self, "model_ref", {"name": self.bundle.name, "version": self.bundle.version}
+        )
 
 
 @dataclass(frozen=True)

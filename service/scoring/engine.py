@@ -20,15 +20,24 @@ import numpy.typing as npt
 import orjson
 
 from service.decisions import DecisionLog, DecisionRecord, decision_id, utc_now
-from service.errors import DataError
-from service.policy import DecisionBatch, RankResult, decide, rank, two_sided_level, uniform_draws
+from service.errors import DataError, DecisionLogError, UpshotError
+from service.policy import (
+    DecisionBatch,
+    RankResult,
+    decide,
+    rank,
+    two_sided_level,
+    uniform_draw,
+    uniform_draws,
+)
+from service.policy import decide_one as policy_decide_one
 from service.scoring.catalog import BoundCampaign
 from service.scoring.estimates import Estimates
 from service.scoring.features import FeatureTable, InvalidFeatures
-from service.scoring.single import decide_row
 
 __all__ = [
     "Decided",
+    "Single",
     "commit",
     "decide_many",
     "decide_one",
@@ -71,22 +80,71 @@ class Decided:
 # -- deciding ------------------------------------------------------------------------------
 
 
+@dataclass(frozen=True, eq=False)
+class Single:
+    """One customer's decision: the log record and the JSON-ready response."""
+
+    record: DecisionRecord
+    body: dict[str, Any]
+    reasons: list[str]
+
+    @property
+    def records(self) -> list[DecisionRecord]:
+        return [self.record]
+
+
 def decide_one(
     bound: BoundCampaign, customer_id: str, features: Mapping[str, Any], value: float | None
-) -> Decided:
-    """Decide for one customer (the compiled single-row path when available)."""
-    clean, reasons = bound.schema.check_row(features)
+) -> Single:
+    """Decide for one customer in plain Python (compiled model, scalar policy)."""
+    clean, input_reasons = bound.schema.check_row(features)
     campaign = bound.campaign
-    level = two_sided_level(campaign.confidence)
-    est = bound.model.estimate_row(clean, level).take(bound.arm_columns)
-    values = _values(bound, [value])
-    batch = decide_row(
-        est.tau[0].tolist(), est.low[0].tolist(), est.high[0].tolist(), float(est.mu0[0]),
-        float(values[0]), campaign.costs.tolist(), customer_id in campaign.suppression,
-        uniform_draws(campaign.salt, campaign.id, [customer_id]),
+    est = bound.model.estimate_row(clean, two_sided_level(campaign.confidence))
+    cols = bound.arm_index
+    tau_all, low_all, high_all = est.tau[0].tolist(), est.low[0].tolist(), est.high[0].tolist()
+    tau = [tau_all[j] for j in cols]
+    low = [low_all[j] for j in cols]
+    high = [high_all[j] for j in cols]
+    mu0 = float(est.mu0[0])
+    worth = campaign.value if value is None else float(value)
+    costs = bound.cost_list
+    d = policy_decide_one(
+        tau, high, mu0, worth, costs, customer_id in campaign.suppression,
+        uniform_draw(campaign.salt, campaign.id, customer_id),
         exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
     )  # fmt: skip
-    return _finish(bound, [customer_id], [clean], values, est, [reasons], batch, None)
+    labels = bound.labels
+    model = (bound.bundle.name, bound.bundle.version)
+    d_id = decision_id(campaign.id, customer_id, campaign.hash, model, clean, worth)
+    record = DecisionRecord(
+        decision_id=d_id, created_at=utc_now(), campaign=campaign.id, customer_id=customer_id,
+        model_name=model[0], model_version=model[1], policy_hash=campaign.hash,
+        features=clean, value=worth, arms=list(labels[1:]), tau=tau, low=low, high=high,
+        mu0=mu0, action=labels[d.action], expected_value=d.expected_value,
+        explored=d.explored, holdout=d.holdout, do_not_contact=d.do_not_contact,
+        propensity=d.propensity, action_probs=dict(zip(labels, d.action_probs, strict=True)),
+        mode="score",
+    )  # fmt: skip
+    k = d.chosen - 1 if d.chosen else max(range(len(tau)), key=d.ev_per_arm.__getitem__)
+    reasons = d.reasons + input_reasons
+    body = {
+        "decision_id": d_id, "customer_id": customer_id, "campaign": campaign.id,
+        "model": bound.model_ref, "policy_hash": campaign.hash, "action": labels[d.action],
+        "arm": labels[k + 1], "uplift": tau[k], "uplift_low": low[k], "uplift_high": high[k],
+        "confidence": campaign.confidence, "outcome_without_contact": mu0,
+        "outcome_with_arm": mu0 + tau[k], "expected_value": d.expected_value,
+        "do_not_contact": d.do_not_contact, "explored": d.explored, "holdout": d.holdout,
+        "propensity": d.propensity, "reasons": reasons,
+        "arms": [
+            {
+                "arm": labels[j + 1], "cost": costs[j], "uplift": tau[j],
+                "uplift_low": low[j], "uplift_high": high[j], "outcome": mu0 + tau[j],
+                "expected_value": d.ev_per_arm[j], "do_not_contact": d.dnc_per_arm[j],
+            }
+            for j in range(len(tau))
+        ],
+    }  # fmt: skip
+    return Single(record, body, reasons)
 
 
 def decide_many(
@@ -151,32 +209,17 @@ def _decide(
         campaign.opted_out(ids), uniform_draws(campaign.salt, campaign.id, ids),
         exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
     )  # fmt: skip
-    return _finish(bound, ids, features, values, est, input_reasons, batch, ranking)
-
-
-def _finish(
-    bound: BoundCampaign,
-    ids: list[str],
-    features: list[dict[str, Any]],
-    values: npt.NDArray[np.float64],
-    est: Estimates,
-    input_reasons: list[list[str]],
-    batch: DecisionBatch,
-    ranking: tuple[int | None, float | None, str] | None,
-) -> Decided:
-    campaign = bound.campaign
     costs = campaign.costs
     ranked = None
     if ranking is not None:
         ranked = rank(batch, ids, capacity=ranking[0], budget=ranking[1], costs=costs)
     model = (bound.bundle.name, bound.bundle.version)
     value_list = values.tolist()
+    context = "score" if ranking is None else ranking[2]
     ids_out = [
-        decision_id(campaign.id, i, campaign.hash, model, f, v)
+        decision_id(campaign.id, i, campaign.hash, model, f, v, context=context)
         for i, f, v in zip(ids, features, value_list, strict=True)
     ]
-    if ranking is not None:
-        ids_out = [_derived_id(d, ranking[2]) for d in ids_out]
     arm = np.where(batch.chosen > 0, batch.chosen, np.argmax(batch.ev_per_arm, axis=1) + 1)
     decided = Decided(
         bound=bound, ids=ids, values=values, estimates=est, batch=batch,
@@ -194,11 +237,11 @@ def _values(bound: BoundCampaign, values: Sequence[Any]) -> npt.NDArray[np.float
     for i, v in enumerate(values):
         if v is None:
             out[i] = default
-        elif type(v) in (int, float) and np.isfinite(v) and v >= 0:
+        elif type(v) in (int, float) and np.isfinite(v) and v > 0:
             out[i] = v
         else:
             problems.append(
-                {"row": i, "feature": "value", "problem": f"must be a finite number >= 0, "
+                {"row": i, "feature": "value", "problem": f"must be a finite number > 0, "
                  f"got {v!r}; send null to use the campaign's value ({default})"}
             )  # fmt: skip
     if problems:
@@ -216,12 +259,8 @@ def _refuse_duplicates(ids: Sequence[str]) -> None:
 
 
 def _rank_context(ids: Sequence[str], capacity: int | None, budget: float | None) -> str:
-    digest = hashlib.blake2b(orjson.dumps([list(ids), capacity, budget]), digest_size=16)
-    return digest.hexdigest()
-
-
-def _derived_id(base: str, context: str) -> str:
-    return hashlib.blake2b(f"rank:{base}:{context}".encode(), digest_size=16).hexdigest()
+    digest = hashlib.blake2b(orjson.dumps([sorted(ids), capacity, budget]), digest_size=16)
+    return "rank:" + digest.hexdigest()
 
 
 def _feature_rows(table: FeatureTable) -> list[dict[str, Any]]:
@@ -287,12 +326,25 @@ def _records(decided: Decided, features: list[dict[str, Any]]) -> list[DecisionR
 # -- committing ----------------------------------------------------------------------------
 
 
-async def commit(log: DecisionLog, decided: Decided) -> None:
-    """Commit every record to the log; returns only once they are durable."""
-    if len(decided.records) > _THREAD_RECORDS:
-        await asyncio.to_thread(log.append_sync, decided.records)
-    else:
-        await log.append(decided.records)
+async def commit(log: DecisionLog, records: list[DecisionRecord]) -> None:
+    """Commit records to the log; returns only once they are durable.
+
+    Raises
+    ------
+    DecisionLogError
+        The log could not commit them; nothing of this call was logged.
+    """
+    try:
+        if len(records) > _THREAD_RECORDS:
+            await asyncio.to_thread(log.append_sync, records)
+        else:
+            await log.append(records)
+    except DecisionLogError:
+        raise
+    except DataError:
+        raise
+    except UpshotError as err:
+        raise DecisionLogError(str(err)) from err
 
 
 # -- views ---------------------------------------------------------------------------------

@@ -28,6 +28,6 @@ async def rank(body: RankRequest, state: StateDep, _: ScorerKey) -> OrjsonRespon
         return rank_many(bound, ids, table, values, capacity=body.capacity, budget=body.budget)
 
     decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await commit(state.log, decided)
-    count_decisions(state.metrics, decided)
+    await commit(state.log, decided.records)
+    count_decisions(state.metrics, bound.campaign.id, decided.records)
     return OrjsonResponse(ranked_list(decided))

@@ -19,6 +19,7 @@ from service.api.schemas import (
     ErrorBody,
     ScoreRequest,
 )
+from service.decisions import DecisionRecord
 from service.scoring import (
     Decided,
     commit,
@@ -42,10 +43,10 @@ async def score(body: ScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResp
     """Decide whether and how to contact one customer; the decision is logged first."""
     bound = state.catalog.get(body.campaign)
     customer = body.customer
-    decided = decide_one(bound, customer.id, customer.features, customer.value)
-    await commit(state.log, decided)
-    count_decisions(state.metrics, decided)
-    return OrjsonResponse(decision_rows(decided)[0])
+    one = decide_one(bound, customer.id, customer.features, customer.value)
+    await commit(state.log, one.records)
+    count_decisions(state.metrics, bound.campaign.id, one.records)
+    return OrjsonResponse(one.body)
 
 
 @router.post("/batch", response_model=BatchDecisions | DecisionColumns, responses=ERRORS)
@@ -59,8 +60,8 @@ async def score_batch(body: BatchScoreRequest, state: StateDep, _: ScorerKey) ->
         return decide_many(bound, ids, table, values)
 
     decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await commit(state.log, decided)
-    count_decisions(state.metrics, decided)
+    await commit(state.log, decided.records)
+    count_decisions(state.metrics, bound.campaign.id, decided.records)
     if body.columns is not None:
         return OrjsonResponse(decision_columns(decided))
     rows = decision_rows(decided)
@@ -74,14 +75,13 @@ async def score_batch(body: BatchScoreRequest, state: StateDep, _: ScorerKey) ->
     )
 
 
-def count_decisions(metrics: Metrics, decided: Decided) -> None:
+def count_decisions(metrics: Metrics, campaign: str, records: list[DecisionRecord]) -> None:
     """Count committed decisions by action, with the explored and held-out shares."""
-    labels = decided.bound.campaign.action_labels()
-    result = decided.ranked if decided.ranked is not None else decided.batch
-    metrics.record_decisions(
-        decided.bound.campaign.id,
-        "rank" if decided.ranked is not None else "score",
-        [labels[a] for a in result.action.tolist()],
-        explored=int(decided.batch.explored.sum()),
-        held_out=int(result.holdout.sum()),
-    )
+    if records:
+        metrics.record_decisions(
+            campaign,
+            records[0].mode,
+            [r.action for r in records],
+            explored=sum(r.explored for r in records),
+            held_out=sum(r.holdout for r in records),
+        )
