@@ -116,8 +116,30 @@ def bind(models_dir: Path, campaigns_file: Path) -> Catalog:
     return bind_campaigns(ModelRegistry(models_dir), load_campaigns(campaigns_file), compile=False)
 
 
-def true_policy_value(sim: SimulatedCampaign, target: np.ndarray) -> float:
+def true_policy_value(expected: np.ndarray, target: np.ndarray) -> float:
     """True net value per decision of a policy given as (n, 3) action probabilities."""
     costs = np.array([0.0, COSTS["email"], COSTS["call"]])
-    net = VALUE * sim.expected_outcomes() - costs
+    net = VALUE * expected - costs
     return float((target * net).sum(axis=1).mean())
+
+
+def expected_for(days: list[Day], decision_ids: list[str]) -> np.ndarray:
+    """True expected outcomes (n, 3) of the logged decisions, aligned by decision id."""
+    where = {d: (k, i) for k, day in enumerate(days) for i, d in enumerate(day.decision_ids)}
+    out = np.empty((len(decision_ids), 3))
+    for row, d in enumerate(decision_ids):
+        k, i = where[d]
+        out[row] = days[k].sim.expected_outcomes()[i]
+    return out
+
+
+def train_worse_model(models_dir: Path, *, n: int = 4000, seed: int = 7) -> str:
+    """A version trained on a campaign whose treatment labels were shuffled: no signal."""
+    frame = simulate("larkspur", n, random_state=seed).to_frame()
+    rng = np.random.default_rng(seed)
+    frame["treatment"] = rng.permutation(frame["treatment"].to_numpy())
+    result = train_model(
+        frame, treatment="treatment", outcome="renewed", control="none", learner="t",
+        base="linear", name="larkspur", models_dir=models_dir, n_bootstrap=5, n_splits=3,
+    )  # fmt: skip
+    return result.version
