@@ -53,3 +53,8 @@ def world(tmp_path_factory: pytest.TempPathFactory) -> Iterator[World]:
             days.append(run_day_in_process(catalog, log, store, day, 3000))
             boundaries.append(log.get(days[-1].decision_ids[0]).created_at)  # type: ignore[union-attr]
     yield World(root, models_dir, campaigns_file, log_path, version, days, boundaries)
+
+
+@pytest.fixture
+def anyio_backend() -> str:
+    return "asyncio"

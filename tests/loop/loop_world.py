@@ -143,3 +143,64 @@ def train_worse_model(models_dir: Path, *, n: int = 4000, seed: int = 7) -> str:
         base="linear", name="larkspur", models_dir=models_dir, n_bootstrap=5, n_splits=3,
     )  # fmt: skip
     return result.version
+
+
+class started:  # noqa: N801 - used like a function: `async with started(app) as http`
+    """Run an app's lifespan and give an httpx client talking to it in-process."""
+
+    def __init__(self, app: Any) -> None:
+        import httpx
+
+        self.app = app
+        self._lifespan = app.router.lifespan_context(app)
+        self._client = httpx.AsyncClient(
+            transport=httpx.ASGITransport(app=app), base_url="http://upshot.test"
+        )
+
+    async def __aenter__(self) -> Any:
+        await self._lifespan.__aenter__()
+        return self._client
+
+    async def __aexit__(self, *exc: object) -> None:
+        await self._client.aclose()
+        await self._lifespan.__aexit__(*exc)
+
+
+def make_app(models_dir: Path, campaigns_file: Path, log_path: Path) -> Any:
+    """The real service app on this world (scikit-learn scoring path, no API keys)."""
+    from service.api.app import create_app
+    from service.config import load_settings
+
+    settings = load_settings(
+        models_dir=models_dir,
+        campaigns_file=campaigns_file,
+        decision_log=str(log_path),
+        compiled=False,
+    )
+    app = create_app(settings)
+    _include_loop_routes(app)
+    return app
+
+
+def _include_loop_routes(app: Any) -> None:
+    # Until service/api/app.py registers the learning-loop routers.
+    from service.api.routes import lift, outcomes
+
+    paths = {getattr(r, "path", None) for r in app.routes}
+    for router in (outcomes.router, lift.router):
+        if not {r.path for r in router.routes} <= paths:
+            app.include_router(router)
+
+
+async def score_columns(client: Any, sim: SimulatedCampaign, day: int) -> dict[str, Any]:
+    """POST a day's customers to /v1/score/batch in column form; return the columns."""
+    ids, columns = customers(sim, day)
+    response = await client.post(
+        "/v1/score/batch", json={"campaign": CAMPAIGN, "columns": {"id": ids, **columns}}
+    )
+    assert response.status_code == 200, response.text
+    cols: dict[str, Any] = response.json()["columns"]
+    return cols
+
+
+ACTIONS = {"none": 0, "email": 1, "call": 2}

@@ -1,0 +1,112 @@
+"""The learning-loop endpoints in-process: POST /v1/outcomes and GET .../lift."""
+
+from __future__ import annotations
+
+from collections.abc import AsyncIterator
+from typing import Any
+
+import numpy as np
+import pytest
+from loop_world import (
+    ACTIONS,
+    CAMPAIGN,
+    draw_outcomes,
+    make_app,
+    score_columns,
+    started,
+    write_campaigns,
+)
+
+from service.simulation import simulate
+
+pytestmark = pytest.mark.anyio
+
+
+@pytest.fixture
+async def api(world, tmp_path) -> AsyncIterator[tuple[Any, dict, np.ndarray, Any]]:
+    """A started app whose log holds one scored day (1,500 customers), and its truth."""
+    app = make_app(world.models_dir, write_campaigns(tmp_path / "c.toml"), tmp_path / "d.db")
+    sim = simulate("larkspur", 1500, random_state=31)
+    async with started(app) as client:
+        cols = await score_columns(client, sim, 31)
+        action = np.array([ACTIONS[a] for a in cols["action"]])
+        yield client, cols, draw_outcomes(sim, action, seed=32), sim
+
+
+def _payload(cols: dict, y: np.ndarray, rows: range | list[int]) -> dict:
+    return {
+        "outcomes": [
+            {"decision_id": cols["decision_id"][i], "outcome": float(y[i]),
+             "observed_at": "2026-03-08T12:00:00Z"}
+            for i in rows
+        ]
+    }  # fmt: skip
+
+
+async def test_outcomes_are_idempotent_conflicts_refused_unknown_reported(api) -> None:
+    client, cols, y, _ = api
+    n = len(y)
+    first = await client.post("/v1/outcomes", json=_payload(cols, y, range(n)))
+    assert first.status_code == 200, first.text
+    assert first.json() == {"recorded": n, "unchanged": 0, "unknown": 0, "unknown_ids": []}
+    again = await client.post("/v1/outcomes", json=_payload(cols, y, range(n)))
+    assert again.json()["unchanged"] == n and again.json()["recorded"] == 0
+    lift_before = (await client.get(f"/v1/campaigns/{CAMPAIGN}/lift")).json()
+    flipped = y.copy()
+    flipped[5] = 1 - flipped[5]
+    conflict = await client.post("/v1/outcomes", json=_payload(cols, flipped, [5]))
+    assert conflict.status_code == 409
+    error = conflict.json()["error"]
+    assert error["code"] == "conflict"
+    assert error["details"]["conflicts"][0]["decision_id"] == cols["decision_id"][5]
+    assert (
+        await client.get(f"/v1/campaigns/{CAMPAIGN}/lift")
+    ).json() == lift_before  # nothing changed
+    mixed = _payload(cols, y, [0])
+    mixed["outcomes"].append({"decision_id": "never-issued", "outcome": 1})
+    reply = await client.post("/v1/outcomes", json=mixed)
+    assert reply.status_code == 200
+    assert reply.json() == {
+        "recorded": 0, "unchanged": 1, "unknown": 1, "unknown_ids": ["never-issued"],
+    }  # fmt: skip
+
+
+async def test_outcome_bodies_are_checked_field_by_field(api) -> None:
+    client = api[0]
+    bad = await client.post(
+        "/v1/outcomes", json={"outcomes": [{"decision_id": "x", "outcome": "yes"}]}
+    )
+    assert bad.status_code == 422 and bad.json()["error"]["code"] == "invalid_input"
+    naive = await client.post(
+        "/v1/outcomes",
+        json={"outcomes": [{"decision_id": "x", "outcome": 1, "observed_at": "2026-03-08"}]},
+    )
+    assert naive.status_code == 422 and "UTC offset" in naive.json()["error"]["message"]
+    empty = await client.post("/v1/outcomes", json={"outcomes": []})
+    assert empty.status_code == 422
+
+
+async def test_lift_endpoint_covers_the_truth(api) -> None:
+    client, cols, y, sim = api
+    await client.post("/v1/outcomes", json=_payload(cols, y, range(len(y))))
+    body = (await client.get(f"/v1/campaigns/{CAMPAIGN}/lift")).json()
+    # Truth: mean true uplift of the chosen arm ("arm" names it, also for a holdout)
+    # over the customers the policy chose to contact.
+    chosen = np.array([ACTIONS[a] for a in cols["arm"]])
+    targeted = (np.array(cols["action"]) != "none") | np.array(cols["holdout"])
+    tau = sim.expected_outcomes() - sim.mu0[:, None]
+    truth = tau[np.arange(len(chosen)), chosen][targeted].mean()
+    lift = body["targeted"]["lift"]
+    assert lift["low"] <= truth <= lift["high"]
+    assert body["with_outcome"] == body["decisions"] == len(y)
+    assert body["targeted"]["held_out"] == int(np.sum(cols["holdout"]))
+
+
+async def test_lift_errors_name_the_fix(api) -> None:
+    client = api[0]
+    missing = await client.get("/v1/campaigns/nope/lift")
+    assert missing.status_code == 404 and "campaign file" in missing.json()["error"]["message"]
+    bad = await client.get(f"/v1/campaigns/{CAMPAIGN}/lift", params={"since": "yesterday"})
+    assert bad.status_code == 422 and "ISO 8601" in bad.json()["error"]["message"]
+    future = await client.get(f"/v1/campaigns/{CAMPAIGN}/lift", params={"since": "2100-01-01"})
+    assert future.status_code == 404
