@@ -94,9 +94,10 @@ def draw_outcomes(sim: SimulatedCampaign, action: np.ndarray, seed: int) -> np.n
 
 
 def run_day_in_process(
-    catalog: Catalog, log: DecisionLog, store: OutcomeStore, day: int, n: int
+    catalog: Catalog, log: DecisionLog, store: OutcomeStore | None, day: int, n: int
 ) -> Day:
-    """Score a day's customers through the scoring engine, log them, post outcomes."""
+    """Score a day's customers through the scoring engine, log them, post outcomes (unless
+    ``store`` is None)."""
     sim = simulate("larkspur", n, random_state=100 + day)
     ids, columns = customers(sim, day)
     bound = catalog.get(CAMPAIGN)
@@ -105,7 +106,8 @@ def run_day_in_process(
     log.append_sync(decided.records)
     batch = decided.batch
     y = draw_outcomes(sim, batch.action, seed=200 + day)
-    store.record([Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)])
+    if store is not None:
+        store.record([Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)])
     return Day(sim, ids, decided.decision_ids, batch.action, batch.chosen, batch.action_probs, y)
 
 

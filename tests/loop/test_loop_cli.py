@@ -1,0 +1,95 @@
+"""The learning-loop commands: outcomes import, lift, replay, export, drift."""
+
+from __future__ import annotations
+
+import argparse
+import json
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from loop_world import CAMPAIGN, bind, run_day_in_process
+
+from service.commands import drift, export, lift, outcomes, replay
+from service.decisions import DecisionLog
+from service.decisions.outcomes import OutcomeStore
+from service.errors import UpshotError
+
+
+def run_cli(argv: list[str]) -> int:
+    """Parse ``argv`` with the loop commands registered as service.cli does, and run it."""
+    parser = argparse.ArgumentParser(prog="upshot")
+    sub = parser.add_subparsers()
+    for module in (outcomes, lift, replay, export, drift):
+        module.register(sub)
+    args = parser.parse_args(argv)
+    code: int = args.handler(args)
+    return code
+
+
+def _common(world) -> list[str]:
+    return ["--log", str(world.log_path), "--campaigns", str(world.campaigns_file)]
+
+
+@pytest.fixture
+def fresh_log(world, tmp_path) -> tuple[Path, pd.DataFrame]:
+    """A log with one scored day and no outcomes yet, and that day's outcome file."""
+    path = tmp_path / "fresh.sqlite3"
+    with DecisionLog.open(path) as log:
+        day = run_day_in_process(bind(world.models_dir, world.campaigns_file), log, None, 5, 400)
+    frame = pd.DataFrame({"decision_id": day.decision_ids, "outcome": day.outcome.astype(int)})
+    frame["observed_at"] = "2026-03-09T08:00:00+00:00"
+    return path, frame
+
+
+def test_outcomes_import_is_idempotent_and_all_or_nothing(fresh_log, tmp_path, capsys) -> None:
+    path, frame = fresh_log
+    file = tmp_path / "outcomes.csv"
+    pd.concat([frame, pd.DataFrame({"decision_id": ["0123"], "outcome": [1]})]).to_csv(
+        file, index=False
+    )
+    assert run_cli(["outcomes", "import", str(file), "--log", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "400 outcome(s) recorded, 0 already" in out and "1 with an unknown" in out
+    assert "0123" in out  # the id is kept as text, leading zero included
+    assert run_cli(["outcomes", "import", str(file), "--log", str(path)]) == 0
+    assert "0 outcome(s) recorded, 400 already" in capsys.readouterr().out
+    frame.loc[3, "outcome"] = 1 - frame.loc[3, "outcome"]
+    frame.to_parquet(tmp_path / "changed.parquet")
+    with pytest.raises(UpshotError, match="differ from the ones already recorded"):
+        run_cli(["outcomes", "import", str(tmp_path / "changed.parquet"), "--log", str(path)])
+    assert OutcomeStore(path).count() == 400
+
+
+def test_lift_prints_intervals_and_draws_a_plot(world, tmp_path, capsys) -> None:
+    png = tmp_path / "lift.png"
+    assert run_cli(["lift", CAMPAIGN, "--plot", str(png), *_common(world)]) == 0
+    out = capsys.readouterr().out
+    assert "lift per contact" in out and "incremental profit" in out and png.is_file()
+    assert run_cli(["lift", CAMPAIGN, "--json", *_common(world)]) == 0
+    body = json.loads(capsys.readouterr().out)
+    assert body["decisions"] == 6000 and body["targeted"]["held_out"] > 0
+
+
+def test_replay_prints_three_estimates(world, capsys) -> None:
+    argv = ["replay", "--campaign", CAMPAIGN, "--model", f"larkspur:{world.first_version}"]
+    assert run_cli([*argv, *_common(world), "--models-dir", str(world.models_dir)]) == 0
+    out = capsys.readouterr().out
+    for method in ("IPS", "SNIPS", "DR", "effective sample size"):
+        assert method in out
+
+
+def test_export_prints_the_training_command(world, tmp_path, capsys) -> None:
+    out_file = tmp_path / "log.csv"
+    argv = ["export", "--campaign", CAMPAIGN, "--out", str(out_file), "--log", str(world.log_path)]
+    assert run_cli(argv) == 0
+    out = capsys.readouterr().out
+    assert "wrote 6000 decisions" in out and "--weight ipw" in out
+    assert Path(str(out_file) + ".source.json").is_file()
+
+
+def test_drift_prints_a_psi_table(world, capsys) -> None:
+    argv = ["drift", "--campaign", CAMPAIGN, "--last", "1000", *_common(world)]
+    assert run_cli([*argv, "--models-dir", str(world.models_dir)]) == 0
+    out = capsys.readouterr().out
+    assert "tenure_months" in out and "common practice, no source" in out
