@@ -101,6 +101,13 @@ def register(subparsers: Any) -> None:
     )
     parser.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
     parser.add_argument(
+        "--threads",
+        type=int,
+        default=1,
+        help="threads for the numeric libraries while fitting (default: 1; more helps only "
+        "on large tables with idle cores)",
+    )
+    parser.add_argument(
         "--promote", action="store_true", help="make the new version the champion right away"
     )
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -145,6 +152,7 @@ def run(args: argparse.Namespace) -> int:
         cost=args.cost,
         progress=not args.quiet,
         source=str(args.data),
+        threads=args.threads,
     )
     m = result.manifest
     ignored = m["training_data"]["ignored_columns"]

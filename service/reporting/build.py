@@ -54,6 +54,7 @@ def write_report(
     economics = economics or Economics.from_dict(manifest["economics"])
     directory.parent.mkdir(parents=True, exist_ok=True)
     staging = Path(tempfile.mkdtemp(prefix=".report-", dir=directory.parent))
+    staging.chmod(0o755)  # mkdtemp makes it owner-only; the page is meant to be shared
     try:
         tables = arm_tables(oof, economics)
         figures = draw_all(staging, tables)

@@ -67,7 +67,7 @@ def _profit(ax: Any, t: ArmTables) -> None:
         f"best: top {best['fraction']:.0%}",
         (best["fraction"], best["profit_per_1000"]),
         textcoords="offset points",
-        xytext=(6, -12),
+        xytext=(-80 if best["fraction"] > 0.6 else 6, -14),
         fontsize=8,
     )
     ax.set_xlabel("fraction of customers contacted")

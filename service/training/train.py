@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import sys
 from collections.abc import Mapping, Sequence
+from contextlib import nullcontext
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import joblib
 import pandas as pd
+from threadpoolctl import threadpool_limits
 from tqdm import tqdm
 
 from service.errors import DataError
@@ -185,6 +187,7 @@ def train_model(
     cost: float | Mapping[str, float] = 0.0,
     progress: bool = False,
     source: str = "the data",
+    threads: int | None = 1,
 ) -> TrainingResult:
     """Train, evaluate and save a new version of the model ``name``.
 
@@ -219,6 +222,11 @@ def train_model(
         Show a progress bar on standard error.
     source : str
         How to name the data in error messages (e.g. the file path).
+    threads : int or None, default 1
+        Threads for the numeric libraries (OpenMP, BLAS) while fitting; None leaves
+        their defaults. One thread is the default because the many small fits of
+        cross-validation and bootstrap run several times slower, not faster, when
+        threads compete for a few (or shared) cores.
 
     Returns
     -------
@@ -245,7 +253,8 @@ def train_model(
     )
     economics = Economics.build(value, cost, data.arms)
     total = len(names) * n_splits + 2
-    with tqdm(total=total, disable=not progress, file=sys.stderr, unit="step") as bar:
+    limits = threadpool_limits(limits=threads) if threads is not None else nullcontext()
+    with limits, tqdm(total=total, disable=not progress, file=sys.stderr, unit="step") as bar:
         best, cv, scores = _cross_validate(names, data, base, n_splits, random_state, bar)
         bar.set_description(f"fitting {best} with {n_bootstrap} bootstrap refits")
         model = BootstrapUplift(
