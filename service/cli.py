@@ -19,7 +19,16 @@ from service.errors import UpshotError
 
 __all__ = ["COMMANDS", "build_parser", "main"]
 
-COMMANDS: tuple[str, ...] = ("train", "models", "report")
+COMMANDS: tuple[str, ...] = (
+    "train",
+    "models",
+    "report",
+    "outcomes",
+    "lift",
+    "replay",
+    "export",
+    "drift",
+)
 """Modules of ``service.commands`` that provide sub-commands, in help order."""
 
 
