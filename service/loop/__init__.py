@@ -27,6 +27,7 @@ from service.loop.replay import (
     REWARD_MODELS,
     ReplayResult,
     candidate_actions,
+    greedy_policy,
     replay,
     rewards,
 )
@@ -45,6 +46,7 @@ __all__ = [
     "campaign_lift",
     "candidate_actions",
     "export_training_table",
+    "greedy_policy",
     "plot_lift",
     "read_logged",
     "read_provenance",

@@ -33,7 +33,14 @@ from service.policy import (
 from service.registry import LoadedBundle
 from service.scoring import FeatureSchema, servable
 
-__all__ = ["REWARD_MODELS", "ReplayResult", "candidate_actions", "replay", "rewards"]
+__all__ = [
+    "REWARD_MODELS",
+    "ReplayResult",
+    "candidate_actions",
+    "greedy_policy",
+    "replay",
+    "rewards",
+]
 
 FloatArray = npt.NDArray[np.float64]
 
@@ -116,10 +123,8 @@ def candidate_actions(
     est = servable(bundle.model, compile=False).estimate(table, level)
     columns = campaign.arm_columns([str(a) for a in bundle.manifest["arms"]])
     tau, high = est.tau[:, columns], est.high[:, columns]
-    ev = expected_values(tau, logged.value, campaign.costs)
-    allowed = ~do_not_contact_flags(high, campaign.dnc_margin)
-    allowed &= ~campaign.opted_out(logged.customer_ids())[:, None]
-    greedy = greedy_actions(ev, allowed)  # 0 or 1..K in campaign arm order
+    opted_out = campaign.opted_out(logged.customer_ids())
+    greedy = greedy_policy(tau, high, logged.value, campaign, opted_out)
     position = {label: j for j, label in enumerate(logged.labels)}
     absent = [arm for arm in campaign.arm_names if arm not in position]
     if absent:
@@ -133,6 +138,23 @@ def candidate_actions(
     predicted[:, 0] = est.mu0
     predicted[:, to_log[1:]] = est.mu0[:, None] + tau
     return to_log[greedy], predicted
+
+
+def greedy_policy(
+    tau: FloatArray,
+    high: FloatArray,
+    values: FloatArray,
+    campaign: Campaign,
+    opted_out: npt.NDArray[np.bool_],
+) -> npt.NDArray[np.intp]:
+    """The campaign's policy without exploration or holdout: 0 (no contact) or arm 1..K.
+
+    ``tau`` and ``high`` are (n, K) in the campaign's arm order, ``high`` the upper bound
+    at the campaign's confidence (see :func:`~service.policy.two_sided_level`).
+    """
+    ev = expected_values(tau, values, campaign.costs)
+    allowed = ~do_not_contact_flags(high, campaign.dnc_margin) & ~opted_out[:, None]
+    return greedy_actions(ev, allowed)
 
 
 def replay(

@@ -1,4 +1,5 @@
-"""Fixtures of the loop tests: one trained model, a campaign file, a log with two days."""
+"""Fixtures of the loop tests: one trained model, a campaign file, a log with two days
+(built once per session; tests only read it)."""
 
 from __future__ import annotations
 
@@ -38,7 +39,7 @@ class World:
     boundaries: list[str]  # created_at of the first decision of each day
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")
 def world(tmp_path_factory: pytest.TempPathFactory) -> Iterator[World]:
     root = tmp_path_factory.mktemp("loop")
     models_dir = root / "models"

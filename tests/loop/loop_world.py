@@ -87,8 +87,11 @@ def _plain(value: Any) -> Any:
 
 
 def draw_outcomes(sim: SimulatedCampaign, action: np.ndarray, seed: int) -> np.ndarray:
-    """Outcomes drawn from the true law of each customer under the action taken."""
-    rng = np.random.default_rng(seed)
+    """Outcomes drawn from the true law of each customer under the action taken.
+
+    The stream is keyed (seed, 2) so that it never coincides with a simulate() stream.
+    """
+    rng = np.random.default_rng((seed, 2))
     expected = sim.expected_outcomes()  # columns none, email, call (campaign order)
     return (rng.random(len(action)) < expected[np.arange(len(action)), action]).astype(float)
 
@@ -138,7 +141,7 @@ def expected_for(days: list[Day], decision_ids: list[str]) -> np.ndarray:
 def train_worse_model(models_dir: Path, *, n: int = 4000, seed: int = 7) -> str:
     """A version trained on a campaign whose treatment labels were shuffled: no signal."""
     frame = simulate("larkspur", n, random_state=seed).to_frame()
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng((seed, 1))  # not simulate()'s own stream
     frame["treatment"] = rng.permutation(frame["treatment"].to_numpy())
     result = train_model(
         frame, treatment="treatment", outcome="renewed", control="none", learner="t",
@@ -206,3 +209,24 @@ async def score_columns(client: Any, sim: SimulatedCampaign, day: int) -> dict[s
 
 
 ACTIONS = {"none": 0, "email": 1, "call": 2}
+
+
+def expected_qini(model: Any, sim: SimulatedCampaign, rows: np.ndarray | None = None) -> float:
+    """Mean over arms of the normalised Qini coefficient of ``model``'s uplift scores on a
+    fresh randomized campaign, with each outcome replaced by its true expectation under
+    the assigned arm (removes outcome noise; the ranking is what is judged)."""
+    from service.evaluation import qini_coefficient
+
+    rows = np.arange(len(sim.y)) if rows is None else rows
+    tau = np.asarray(model.predict(sim.X.iloc[rows]))
+    labels = list(sim.labels)
+    assigned = np.array([labels.index(t) for t in sim.treatment[rows]])
+    y = sim.expected_outcomes()[rows, assigned]
+    return float(
+        np.mean(
+            [
+                qini_coefficient(y, sim.treatment[rows], tau[:, j], control=sim.control, arm=arm)
+                for j, arm in enumerate(sim.arms)
+            ]
+        )
+    )

@@ -30,7 +30,9 @@ def logged_run(
     seed: int, n: int = 3000, exploration: float = 0.2, holdout: float = 0.2
 ) -> LoggedRun:
     """Larkspur customers decided by a noisy model, outcomes drawn from the true law."""
-    rng = np.random.default_rng(seed)
+    # Not default_rng(seed): simulate() draws from that stream, and reusing it would tie
+    # the exploration draws to the customers' features.
+    rng = np.random.default_rng((seed, 1))
     camp = simulate("larkspur", n, random_state=seed)
     noisy_tau = camp.tau + rng.normal(0.0, 0.05, camp.tau.shape)
     batch = decide(
