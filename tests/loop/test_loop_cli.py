@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import argparse
 import json
 from pathlib import Path
 
@@ -10,21 +9,9 @@ import pandas as pd
 import pytest
 from loop_world import CAMPAIGN, bind, run_day_in_process
 
-from service.commands import drift, export, lift, outcomes, replay
+from service.cli import main as run_cli
 from service.decisions import DecisionLog
 from service.decisions.outcomes import OutcomeStore
-from service.errors import UpshotError
-
-
-def run_cli(argv: list[str]) -> int:
-    """Parse ``argv`` with the loop commands registered as service.cli does, and run it."""
-    parser = argparse.ArgumentParser(prog="upshot")
-    sub = parser.add_subparsers()
-    for module in (outcomes, lift, replay, export, drift):
-        module.register(sub)
-    args = parser.parse_args(argv)
-    code: int = args.handler(args)
-    return code
 
 
 def _common(world) -> list[str]:
@@ -56,8 +43,9 @@ def test_outcomes_import_is_idempotent_and_all_or_nothing(fresh_log, tmp_path, c
     assert "0 outcome(s) recorded, 400 already" in capsys.readouterr().out
     frame.loc[3, "outcome"] = 1 - frame.loc[3, "outcome"]
     frame.to_parquet(tmp_path / "changed.parquet")
-    with pytest.raises(UpshotError, match="differ from the ones already recorded"):
-        run_cli(["outcomes", "import", str(tmp_path / "changed.parquet"), "--log", str(path)])
+    changed = ["outcomes", "import", str(tmp_path / "changed.parquet"), "--log", str(path)]
+    assert run_cli(changed) == 1
+    assert "differ from the ones already recorded" in capsys.readouterr().err
     assert OutcomeStore(path).count() == 400
 
 
@@ -86,6 +74,12 @@ def test_export_prints_the_training_command(world, tmp_path, capsys) -> None:
     out = capsys.readouterr().out
     assert "wrote 6000 decisions" in out and "--weight ipw" in out
     assert Path(str(out_file) + ".source.json").is_file()
+    # The printed command trains the next version as it stands (plus test-size options).
+    command = next(line.split() for line in out.splitlines() if "upshot train" in line)
+    argv = [("from-log" if a == "MODEL" else a) for a in command[1:]]
+    quick = ["--learner", "t", "--base", "linear", "--bootstrap", "3", "--folds", "3", "--quiet"]
+    assert run_cli([*argv, *quick, "--models-dir", str(tmp_path / "models")]) == 0
+    assert "trained from-log v0001" in capsys.readouterr().out
 
 
 def test_drift_prints_a_psi_table(world, capsys) -> None:
