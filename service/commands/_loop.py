@@ -2,16 +2,16 @@
 
 from __future__ import annotations
 
-import argparse
 import json
 import math
 import os
 from pathlib import Path
-from typing import Any
+from typing import Any, Protocol
 
 from service.errors import NotFoundError
 
 __all__ = [
+    "ArgumentAdder",
     "add_campaigns",
     "add_log",
     "add_window",
@@ -23,7 +23,13 @@ __all__ = [
 ]
 
 
-def add_log(parser: argparse.ArgumentParser) -> None:
+class ArgumentAdder(Protocol):
+    """A parser or an argument group."""
+
+    def add_argument(self, *args: Any, **kwargs: Any) -> Any: ...
+
+
+def add_log(parser: ArgumentAdder) -> None:
     """``--log``, defaulting to ``$UPSHOT_DECISION_LOG`` or ``var/decisions.sqlite3``."""
     parser.add_argument(
         "--log",
@@ -32,7 +38,7 @@ def add_log(parser: argparse.ArgumentParser) -> None:
     )
 
 
-def add_campaigns(parser: argparse.ArgumentParser) -> None:
+def add_campaigns(parser: ArgumentAdder) -> None:
     """``--campaigns``, defaulting to ``$UPSHOT_CAMPAIGNS_FILE`` or the demo file."""
     parser.add_argument(
         "--campaigns",
@@ -42,7 +48,7 @@ def add_campaigns(parser: argparse.ArgumentParser) -> None:
     )
 
 
-def add_window(parser: argparse.ArgumentParser) -> None:
+def add_window(parser: ArgumentAdder) -> None:
     """``--since`` and ``--until`` (ISO 8601; a time without offset is UTC)."""
     parser.add_argument("--since", help="decisions from this time on (ISO 8601, e.g. 2026-03-01)")
     parser.add_argument("--until", help="decisions before this time (ISO 8601)")

@@ -7,6 +7,7 @@ import json
 from typing import Any
 
 from service.commands._common import add_models_dir, default_actor, print_metrics, resolve_ref
+from service.commands._gate import add_replay_options, enforce_replay
 from service.errors import BundleError, NotFoundError
 
 __all__ = ["register"]
@@ -41,6 +42,7 @@ def register(subparsers: Any) -> None:
     promote.add_argument(
         "--challenger", action="store_true", help="mark it as challenger instead of champion"
     )
+    add_replay_options(promote)
     promote.set_defaults(handler=_promote)
 
     rollback = actions.add_parser("rollback", help="restore the previous champion")
@@ -173,6 +175,8 @@ def _promote(args: argparse.Namespace) -> int:
     registry = _registry(args)
     role = "challenger" if args.challenger else "champion"
     before = registry.champion(args.name)
+    if args.require_replay and role == "champion":
+        enforce_replay(args, registry)
     registry.promote(args.name, args.version, actor=args.actor, reason=args.reason, role=role)
     if role == "champion" and before == args.version:
         print(f"{args.name} {args.version} already is the champion; nothing changed")

@@ -128,10 +128,12 @@ def _propensity(text: str | None) -> str | dict[str, str] | None:
 
 def run(args: argparse.Namespace) -> int:
     """Train, save and print the version, headline metrics and report path."""
+    from service.loop import read_provenance
     from service.registry import ModelRegistry
     from service.training import read_table, train_model
 
     frame = read_table(args.data)
+    provenance = read_provenance(args.data)  # set when the table is an `upshot export`
     name = args.name or name_from_path(args.data)
     result = train_model(
         frame,
@@ -153,6 +155,7 @@ def run(args: argparse.Namespace) -> int:
         progress=not args.quiet,
         source=str(args.data),
         threads=args.threads,
+        source_decisions=provenance,
     )
     m = result.manifest
     ignored = m["training_data"]["ignored_columns"]
@@ -177,6 +180,12 @@ def run(args: argparse.Namespace) -> int:
         print(
             f'to serve it: upshot models promote {name} {result.version} --reason "..."'
             + (f" --models-dir {args.models_dir}" if str(args.models_dir) != "models" else "")
+        )
+    if provenance is not None:
+        print(
+            f"trained on {provenance['decisions']} logged decisions of campaign "
+            f"{provenance['campaign']} ({provenance['first_decision_at']} .. "
+            f"{provenance['last_decision_at']}); recorded as source_decisions in the manifest"
         )
     print(f"report: {result.report}")
     return 0

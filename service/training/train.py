@@ -188,6 +188,7 @@ def train_model(
     progress: bool = False,
     source: str = "the data",
     threads: int | None = 1,
+    source_decisions: Mapping[str, Any] | None = None,
 ) -> TrainingResult:
     """Train, evaluate and save a new version of the model ``name``.
 
@@ -227,6 +228,10 @@ def train_model(
         their defaults. One thread is the default because the many small fits of
         cross-validation and bootstrap run several times slower, not faster, when
         threads compete for a few (or shared) cores.
+    source_decisions : mapping, optional
+        Where the rows came from when they are an export of the decision log (campaign,
+        window, count, SHA-256; see ``service.loop.export``); kept in the manifest under
+        ``source_decisions``.
 
     Returns
     -------
@@ -282,6 +287,8 @@ def train_model(
             random_state=random_state,
             economics=economics,
         )
+        if source_decisions is not None:
+            body["source_decisions"] = jsonable(dict(source_decisions))
         oof = OutOfFold(
             cv.oof, data.y, data.treatment, cv.fold, data.sample_weight, cv.arms, cv.control
         )

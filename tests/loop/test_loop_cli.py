@@ -3,15 +3,17 @@
 from __future__ import annotations
 
 import json
+import shutil
 from pathlib import Path
 
 import pandas as pd
 import pytest
-from loop_world import CAMPAIGN, bind, run_day_in_process
+from loop_world import CAMPAIGN, bind, run_day_in_process, train_worse_model
 
 from service.cli import main as run_cli
 from service.decisions import DecisionLog
 from service.decisions.outcomes import OutcomeStore
+from service.registry import ModelRegistry
 
 
 def _common(world) -> list[str]:
@@ -79,7 +81,37 @@ def test_export_prints_the_training_command(world, tmp_path, capsys) -> None:
     argv = [("from-log" if a == "MODEL" else a) for a in command[1:]]
     quick = ["--learner", "t", "--base", "linear", "--bootstrap", "3", "--folds", "3", "--quiet"]
     assert run_cli([*argv, *quick, "--models-dir", str(tmp_path / "models")]) == 0
-    assert "trained from-log v0001" in capsys.readouterr().out
+    out = capsys.readouterr().out
+    assert "trained from-log v0001" in out and "6000 logged decisions" in out
+    # The new version's manifest points to the decisions it came from.
+    manifest = ModelRegistry(tmp_path / "models").verify("from-log", "v0001")
+    source = manifest["source_decisions"]
+    assert source["campaign"] == CAMPAIGN and source["decisions"] == 6000
+    assert (
+        source["sha256"] == json.loads(Path(str(out_file) + ".source.json").read_text())["sha256"]
+    )
+
+
+def test_promotion_can_require_a_replay_win(world, tmp_path, capsys) -> None:
+    models = tmp_path / "models"
+    shutil.copytree(world.models_dir, models)
+    worse = train_worse_model(models)
+    registry = ModelRegistry(models)
+    base = [*_common(world), "--models-dir", str(models), "--reason", "test"]
+    gate = ["--require-replay", "--campaign", CAMPAIGN]
+    assert run_cli(["models", "promote", "larkspur", worse, *base, *gate]) == 1
+    assert "Not promoted" in capsys.readouterr().err
+    assert registry.champion("larkspur") == world.first_version
+    # Without the check it goes through; then the first model wins its way back.
+    assert run_cli(["models", "promote", "larkspur", worse, *base]) == 0
+    assert run_cli(["models", "promote", "larkspur", world.first_version, *base, *gate]) == 0
+    out = capsys.readouterr().out
+    assert "replay check:" in out and "beats the champion" in out
+    assert registry.champion("larkspur") == world.first_version
+    # A margin larger than any gain refuses even the better model.
+    assert run_cli(["models", "promote", "larkspur", worse, *base]) == 0
+    margin = [*gate, "--margin", "1000"]
+    assert run_cli(["models", "promote", "larkspur", world.first_version, *base, *margin]) == 1
 
 
 def test_drift_prints_a_psi_table(world, capsys) -> None:
