@@ -31,6 +31,7 @@ from service.loop import (
     candidate_actions,
     export_training_table,
     read_logged,
+    replay,
     replay_gate,
     training_arguments,
 )
@@ -95,7 +96,7 @@ def test_the_learning_loop_through_the_real_service(tmp_path) -> None:
         second = train_model(
             read_table(exported.path), **training_arguments(exported.provenance),
             learner="t", base="linear", name="larkspur", models_dir=models,
-            n_bootstrap=5, n_splits=3,
+            n_bootstrap=5, n_splits=3, source_decisions=exported.provenance,
         ).version  # fmt: skip
         worse = train_worse_model(models)
 
@@ -109,6 +110,12 @@ def test_the_learning_loop_through_the_real_service(tmp_path) -> None:
             assert est.low <= true_new <= est.high, (est, true_new)
         assert gate.passed, gate.message
         assert true_new > true_old - 0.25  # the truth agrees it is at least as good
+        # Its manifest points to the decisions it came from; replaying it on them warns.
+        source = challenger.manifest["source_decisions"]
+        assert source["decisions"] == 2 * DAY_SIZE and source["campaign"] == CAMPAIGN
+        assert not any("overlap" in w for w in gate.challenger.warnings)
+        everything = replay(read_logged(log_path, CAMPAIGN), campaign, challenger)
+        assert any("overlap the replay window" in w for w in everything.warnings)
         refused = replay_gate(day3, campaign, registry.load("larkspur", worse), champion)
         assert not refused.passed
         assert _truth(days, day3, registry.load("larkspur", worse), campaign) < true_old
