@@ -16,7 +16,13 @@ import numpy as np
 import pandas as pd
 
 from service.loop import greedy_policy
-from service.offpolicy import OffPolicyEvaluation, evaluate_policy, one_hot
+from service.offpolicy import (
+    OffPolicyEvaluation,
+    RealizedLift,
+    evaluate_policy,
+    one_hot,
+    realized_lift,
+)
 from service.policy import Campaign, decide, two_sided_level
 from service.simulation import SimulatedCampaign, simulate
 
@@ -32,13 +38,25 @@ def estimates(model: Any, X: Any, campaign: Campaign) -> Estimates:
     return tau[:, columns], mu0, low[:, columns], high[:, columns]
 
 
+@dataclass(frozen=True)
+class LogResult:
+    """One simulated log: the replay of the candidate and the realized lift, with truth."""
+
+    replay: OffPolicyEvaluation
+    true_value: float
+    lift: RealizedLift
+    true_targeted_lift: float
+    true_policy_lift: float
+
+
 def replay_log(
     sim: SimulatedCampaign, logged: Estimates, candidate: Estimates, campaign: Campaign, seed: int
-) -> tuple[OffPolicyEvaluation, float]:
+) -> LogResult:
     """Log ``sim``'s customers with the logging estimates, then replay the candidate.
 
-    Returns the evaluation of the candidate's greedy policy (net value per decision) and
-    its true value on those customers.
+    The truth: the candidate's greedy policy's mean net value on these customers; the
+    mean true uplift of the chosen arm over the customers the policy chose to contact;
+    and ``sum_a P(a) tau_a`` per decision for the policy as run.
     """
     n = len(sim.y)
     # Not default_rng(seed): simulate() draws from that stream, and reusing it would tie
@@ -62,7 +80,15 @@ def replay_log(
         target, batch.action, batch.action_probs, net, reward_model=q, warn=False
     )
     truth = float((target * (campaign.value * expected - costs)).sum(axis=1).mean())
-    return result, truth
+    lift = realized_lift(
+        y, batch.action, batch.action_probs, batch.holdout, value=campaign.value,
+        costs=campaign.costs, labels=list(campaign.action_labels()),
+    )  # fmt: skip
+    tau_all = expected - expected[:, :1]
+    targeted = batch.chosen > 0
+    true_targeted = float(tau_all[np.arange(n), batch.chosen][targeted].mean())
+    true_policy = float((batch.action_probs * tau_all).sum(axis=1).mean())
+    return LogResult(result, truth, lift, true_targeted, true_policy)
 
 
 @dataclass
@@ -75,9 +101,16 @@ class Coverage:
         default_factory=lambda: {"ips": [], "snips": [], "dr": []}
     )
     ess: list[float] = field(default_factory=list)
+    lift_hits: dict[str, int] = field(default_factory=lambda: {"targeted": 0, "policy": 0})
+    lift_widths: dict[str, list[float]] = field(
+        default_factory=lambda: {"targeted": [], "policy": []}
+    )
 
     def rates(self) -> dict[str, float]:
         return {k: v / self.reps for k, v in self.hits.items()}
+
+    def lift_rates(self) -> dict[str, float]:
+        return {k: v / self.reps for k, v in self.lift_hits.items()}
 
     def mean_widths(self) -> dict[str, float]:
         return {k: float(np.mean(v)) for k, v in self.widths.items()}
@@ -96,10 +129,20 @@ def coverage(seeds: range, n: int, logging: Any, candidate: Any, campaign: Campa
     for k, (seed, sim) in enumerate(zip(seeds, sims, strict=True)):
         rows = slice(k * n, (k + 1) * n)
         logged, cand = (tuple(a[rows] for a in e) for e in both)
-        result, truth = replay_log(sim, logged, cand, campaign, seed)  # type: ignore[arg-type]
+        one = replay_log(sim, logged, cand, campaign, seed)  # type: ignore[arg-type]
         out.reps += 1
-        out.ess.append(result.ess)
-        for est in result.estimates():
-            out.hits[est.method] += int(est.low <= truth <= est.high)
+        out.ess.append(one.replay.ess)
+        for est in one.replay.estimates():
+            out.hits[est.method] += int(est.low <= one.true_value <= est.high)
             out.widths[est.method].append(est.high - est.low)
+        t = one.lift.targeted
+        if t is not None:
+            out.lift_hits["targeted"] += int(
+                t.difference.low <= one.true_targeted_lift <= t.difference.high
+            )
+            out.lift_widths["targeted"].append(t.difference.high - t.difference.low)
+        out.lift_widths["policy"].append(one.lift.lift.high - one.lift.lift.low)
+        out.lift_hits["policy"] += int(
+            one.lift.lift.low <= one.true_policy_lift <= one.lift.lift.high
+        )
     return out

@@ -29,3 +29,5 @@ def test_replay_intervals_cover_the_true_candidate_value_at_least_90_percent(tmp
     # DR and SNIPS use the same rows as IPS but vary less.
     widths = result.mean_widths()
     assert widths["dr"] < widths["ips"] and widths["snips"] < widths["ips"]
+    # The realized lift on the same logs covers its truth just as often.
+    assert min(result.lift_rates().values()) >= 0.90, result.lift_rates()
