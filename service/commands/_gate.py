@@ -31,6 +31,13 @@ def add_replay_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument(
         "--replay-method", choices=["dr", "snips", "ips"], default="dr", help="estimator (dr)"
     )
+    group.add_argument(
+        "--replay-rule",
+        choices=["estimate", "lower"],
+        default="estimate",
+        help="the estimated gain must exceed the margin (estimate), or the lower end of "
+        "its 95%% interval must (lower; stricter)",
+    )
     group.add_argument("--since", help="replay decisions from this time on (ISO 8601)")
     group.add_argument("--until", help="replay decisions before this time (ISO 8601)")
     add_log(group)
@@ -81,6 +88,7 @@ def enforce_replay(args: argparse.Namespace, registry: Any) -> None:
         registry.load(args.name, champion) if champion is not None else None,
         margin=args.margin,
         method=args.replay_method,
+        rule=args.replay_rule,
     )
     print(f"replay check: {gate.message}")
     print_warnings(gate.warnings)

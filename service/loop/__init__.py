@@ -19,7 +19,7 @@ from service.loop.export import (
     sidecar_path,
     training_arguments,
 )
-from service.loop.gate import GATE_METHODS, ReplayGate, replay_gate
+from service.loop.gate import GATE_METHODS, GATE_RULES, ReplayGate, replay_gate
 from service.loop.lift import COVERAGE_GAP, LiftReport, campaign_lift
 from service.loop.logged import LoggedDecisions, read_logged, utc_text
 from service.loop.plot import plot_lift
@@ -36,6 +36,7 @@ __all__ = [
     "COVERAGE_GAP",
     "EXPORT_KIND",
     "GATE_METHODS",
+    "GATE_RULES",
     "REWARD_MODELS",
     "SIDECAR_SUFFIX",
     "ExportResult",

@@ -15,10 +15,14 @@ from service.offpolicy import Estimate, compare_policies
 from service.policy import Campaign
 from service.registry import LoadedBundle
 
-__all__ = ["GATE_METHODS", "ReplayGate", "replay_gate"]
+__all__ = ["GATE_METHODS", "GATE_RULES", "ReplayGate", "replay_gate"]
 
 GATE_METHODS = ("dr", "snips", "ips")
 """Estimators a promotion may be judged by; DR by default (lowest variance here)."""
+
+GATE_RULES = ("estimate", "lower")
+"""``estimate``: the estimated gain must exceed the margin; ``lower``: the lower end of
+its interval must (stricter: the gain must be clear of the noise)."""
 
 
 @dataclass(frozen=True)
@@ -26,11 +30,13 @@ class ReplayGate:
     """The verdict: does the challenger's estimated value beat the champion's by the margin?
 
     ``difference`` is challenger minus champion in net value per decision (paired, on
-    the same decisions) by every estimator; the verdict uses ``method``'s point estimate.
+    the same decisions) by every estimator; the verdict uses ``method``'s point estimate
+    (``rule="estimate"``) or the lower end of its interval (``rule="lower"``).
     """
 
     passed: bool
     method: str
+    rule: str
     margin: float
     challenger: ReplayResult
     champion: ReplayResult | None
@@ -43,6 +49,7 @@ class ReplayGate:
         return {
             "passed": self.passed,
             "method": self.method,
+            "rule": self.rule,
             "margin": self.margin,
             "message": self.message,
             "difference": {k: v.to_dict() for k, v in self.difference.items()},
@@ -60,15 +67,19 @@ def replay_gate(
     *,
     margin: float = 0.0,
     method: str = "dr",
+    rule: str = "estimate",
     confidence: float = 0.95,
 ) -> ReplayGate:
     """Replay both models on the same decisions and judge the challenger.
 
     It passes when ``V(challenger) - V(champion) > margin`` by ``method`` (net value per
-    decision, the campaign's currency), or when there is no champion to beat.
+    decision, the campaign's currency) -- the estimate, or with ``rule="lower"`` the
+    lower end of its interval -- or when there is no champion to beat.
     """
     if method not in GATE_METHODS:
         raise DataError(f"method={method!r} must be one of {list(GATE_METHODS)}.")
+    if rule not in GATE_RULES:
+        raise DataError(f"rule={rule!r} must be one of {list(GATE_RULES)}.")
     if not (math.isfinite(margin) and margin >= 0):
         raise DataError(
             f"margin={margin!r} must be a finite number >= 0 (net value per decision)."
@@ -76,8 +87,9 @@ def replay_gate(
     mine = replay(logged, campaign, challenger, confidence=confidence)
     if champion is None:
         return ReplayGate(
-            True, method, margin, mine, None, {}, "There is no champion to beat.", mine.warnings
-        )
+            True, method, rule, margin, mine, None, {}, "There is no champion to beat.",
+            mine.warnings,
+        )  # fmt: skip
     theirs = replay(logged, campaign, champion, confidence=confidence)
     done = logged.with_outcomes()
     net, costs = rewards(done, campaign)
@@ -93,13 +105,14 @@ def replay_gate(
         confidence=confidence,
     )
     d = diff[method]
-    passed = bool(d.value > margin)
+    passed = bool((d.value if rule == "estimate" else d.low) > margin)
     verb = "beats" if passed else "does not beat"
+    how = "" if rule == "estimate" else " (lower end of the interval)"
     message = (
         f"{challenger.name}:{challenger.version} {verb} the champion "
-        f"{champion.name}:{champion.version} by more than {margin:g} per decision on "
+        f"{champion.name}:{champion.version} by more than {margin:g} per decision{how} on "
         f"{mine.n} logged decisions of {logged.campaign!r}: {method.upper()} difference "
         f"{d.value:+.4g} [{d.low:+.4g}, {d.high:+.4g}] ({confidence:.0%} interval)."
     )
     notes = [*mine.warnings, *(f"champion: {w}" for w in theirs.warnings)]
-    return ReplayGate(passed, method, margin, mine, theirs, diff, message, notes)
+    return ReplayGate(passed, method, rule, margin, mine, theirs, diff, message, notes)

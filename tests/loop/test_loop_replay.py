@@ -65,6 +65,9 @@ def test_a_worse_candidate_is_refused_and_the_champion_does_not_beat_itself(worl
     reverse = replay_gate(logged, campaign, champion, challenger, margin=0.0)
     assert reverse.passed
     assert not replay_gate(logged, campaign, champion, champion).passed  # 0 is not > 0
+    # The stricter rule asks the whole interval to clear the margin; a clear win does.
+    strict = replay_gate(logged, campaign, champion, challenger, rule="lower")
+    assert strict.passed == (reverse.difference["dr"].low > 0) and strict.passed
     assert not replay_gate(logged, campaign, champion, challenger, margin=1e6).passed
 
 
