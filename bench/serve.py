@@ -42,6 +42,7 @@ import pandas as pd
 
 from service.registry import ModelRegistry
 from service.simulation import simulate
+from service.uplift.compiled import compile_model
 
 ROOT = Path(__file__).resolve().parents[1]
 CAMPAIGNS = ROOT / "campaigns" / "larkspur.toml"
@@ -151,7 +152,7 @@ def _train(models_dir: Path, n: int, base: str, n_bootstrap: int) -> None:
     from service.training import train_model
 
     sim = simulate(MODEL, n=n, random_state=0)
-    print(f"training {MODEL}: T-learner, base={base}, {n} rows, {n_bootstrap} bootstraps ...")
+    _progress(f"training {MODEL}: T-learner, base={base}, {n} rows, {n_bootstrap} bootstraps ...")
     result = train_model(
         sim.to_frame(), treatment=sim.treatment_name, outcome=sim.outcome_name,
         features=list(sim.X.columns), learner="t", base=base, name=MODEL,
@@ -249,26 +250,36 @@ def _run(args: argparse.Namespace, models_dir: Path, port: int) -> None:
     def next_score() -> bytes:
         return _request("POST", "/v1/score", next(bodies), port)
 
+    _progress(f"GET /healthz for {args.seconds:g} s ...")
     health = asyncio.run(_load("GET /healthz", port, lambda: trivial, args.seconds,
                                args.connections))  # fmt: skip
+    _progress(f"POST /v1/score for {args.seconds:g} s ...")
     single = asyncio.run(_load("POST /v1/score", port, next_score, args.seconds,
                                args.connections))  # fmt: skip
 
     ids, frame = _customers(args.batch, seed=23)
     batch_body = _request("POST", "/v1/score/batch", _columns_body(ids, frame, {}), port)
     rank_body = _request("POST", "/v1/rank", _columns_body(ids, frame, {"capacity": 5000}), port)
+    _progress(f"POST /v1/score/batch and /v1/rank with {args.batch:,} customers ...")
     batch_times = [_timed(port, batch_body) for _ in range(args.repeats)]
     rank_times = [_timed(port, rank_body) for _ in range(args.repeats)]
 
+    _progress("in-process predictions of the same model ...")
     bundle = ModelRegistry(models_dir).load(MODEL)
-    in_process = []
+    compiled = compile_model(bundle.model)
+    in_process = {"scikit-learn": [], "compiled": []}
     for _ in range(args.repeats):
-        start = time.perf_counter()
-        bundle.model.predict_interval(frame, confidence=0.8)
-        in_process.append(time.perf_counter() - start)
+        for name, model in (("scikit-learn", bundle.model), ("compiled", compiled)):
+            start = time.perf_counter()
+            model.predict_interval(frame, confidence=0.8)
+            in_process[name].append(time.perf_counter() - start)
 
     _report(args, health, single, batch_times, rank_times, in_process, len(batch_body),
             bundle.version)  # fmt: skip
+
+
+def _progress(message: str) -> None:
+    print(message, file=sys.stderr, flush=True)
 
 
 def _timed(port: int, request: bytes) -> float:
@@ -284,7 +295,7 @@ def _report(
     single: Load,
     batch: list[float],
     ranked: list[float],
-    in_process: list[float],
+    in_process: dict[str, list[float]],
     body_bytes: int,
     version: str,
 ) -> None:
@@ -306,16 +317,19 @@ def _report(
           f"{args.repeats}")  # fmt: skip
     print(f"{'path':<40}{'seconds':>10}{'customers/s':>14}")
     for name, times in (
-        ("in-process predict_interval (sklearn)", in_process),
+        ("in-process predict_interval, sklearn", in_process["scikit-learn"]),
+        ("in-process predict_interval, compiled", in_process["compiled"]),
         ("POST /v1/score/batch", batch),
         ("POST /v1/rank (capacity 5000)", ranked),
     ):
         median = statistics.median(times)
         print(f"{name:<40}{median:>10.2f}{n / median:>14,.0f}")
     print()
+    # The ceiling is the faster of the two in-process paths, so the ratio is conservative.
+    fastest = min(statistics.median(t) for t in in_process.values())
     ratio_single = single.rate / health.rate
-    ratio_batch = statistics.median(in_process) / statistics.median(batch)
-    ratio_rank = statistics.median(in_process) / statistics.median(ranked)
+    ratio_batch = fastest / statistics.median(batch)
+    ratio_rank = fastest / statistics.median(ranked)
     print(f"single-score / trivial throughput: {ratio_single:.2f}x (target >= 0.5x)")
     print(f"batch / in-process throughput:     {ratio_batch:.2f}x (target >= 0.4x)")
     print(f"rank / in-process throughput:      {ratio_rank:.2f}x")

@@ -184,3 +184,16 @@ upshot demo: Larkspur Tea Club (a fictional tea subscription; invented data, dem
 Decisions are estimates, not advice: honour opt-outs and the contact law where each
 customer lives (see README, "Responsible use"). Stop with Ctrl-C.
 """
+
+
+def _main() -> int:
+    """``python -m service.commands.serve serve|demo ...`` (same as ``upshot serve|demo``)."""
+    parser = argparse.ArgumentParser(prog="upshot")
+    register(parser.add_subparsers(title="commands", metavar="COMMAND", required=True))
+    args = parser.parse_args()
+    code: int = args.handler(args)
+    return code
+
+
+if __name__ == "__main__":
+    raise SystemExit(_main())
