@@ -18,10 +18,21 @@ from service.api.errors import install_error_handlers
 from service.api.limits import BodySizeLimit
 from service.api.metrics import Metrics, MetricsMiddleware
 from service.api.responses import OrjsonResponse
-from service.api.routes import admin, campaigns, health, metrics, models, rank, score
+from service.api.routes import (
+    admin,
+    campaigns,
+    health,
+    lift,
+    metrics,
+    models,
+    outcomes,
+    rank,
+    score,
+)
 from service.api.state import ServiceState
 from service.config import Settings, load_settings
 from service.decisions import DecisionLog
+from service.monitoring import DriftCollector
 from service.registry import ModelRegistry
 
 __all__ = ["API_VERSION", "app_from_env", "create_app"]
@@ -64,6 +75,12 @@ def create_app(
     keyring = KeyRing(settings.keys())
     metrics_ = Metrics()
     state = ServiceState(settings, registry=registry, log=log, keyring=keyring, metrics=metrics_)
+    # Drift gauges on /metrics, computed off the event loop from the log's last decisions.
+    metrics_.registry.register(
+        DriftCollector(
+            lambda: (state.log.path, {c: b.bundle for c, b in state.catalog.bound.items()})
+        )
+    )
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
@@ -100,7 +117,7 @@ def create_app(
     install_error_handlers(app)
     app.add_middleware(BodySizeLimit, max_bytes=settings.max_body_bytes)
     app.add_middleware(MetricsMiddleware, metrics=metrics_)
-    for module in (health, score, rank, models, campaigns, admin, metrics):
+    for module in (health, score, rank, models, campaigns, admin, metrics, outcomes, lift):
         app.include_router(module.router)
     return app
 

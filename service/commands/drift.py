@@ -52,8 +52,10 @@ def run(args: argparse.Namespace) -> int:
         name, version = resolve_ref(registry, args.model)
     else:
         name, version = campaign.model, registry.resolve(campaign.model, campaign.model_version)
-    logged = read_logged(args.log, args.campaign, since=args.since, until=args.until)
-    report = log_drift(logged, registry.load(name, version), last=args.last)
+    logged = read_logged(
+        args.log, args.campaign, since=args.since, until=args.until, last=args.last
+    )
+    report = log_drift(logged, registry.load(name, version))
     if args.json:
         print_json(report.to_dict())
         return 0

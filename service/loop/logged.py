@@ -129,10 +129,13 @@ def read_logged(
     *,
     since: datetime | str | None = None,
     until: datetime | str | None = None,
+    last: int | None = None,
 ) -> LoggedDecisions:
     """Read a campaign's decisions with ``since <= created_at < until`` and their outcomes.
 
-    Times without an offset are taken as UTC. Raises :class:`NotFoundError` when the
+    ``last`` keeps only the most recent ``last`` decisions of the window (read from the
+    end of the index, so a long log costs no more than the window). Times without an
+    offset are taken as UTC. Raises :class:`NotFoundError` when the
     window holds no decision of the campaign, and :class:`DataError` when the campaign's
     arms changed inside the window (analyse each period on its own).
     """
@@ -144,7 +147,9 @@ def read_logged(
         )
     create_schema(path)
     start, end = utc_text(since, "since"), utc_text(until, "until")
-    rows = _query(path, campaign, start, end)
+    if last is not None and last < 1:
+        raise DataError(f"last={last!r} must be a positive number of decisions.")
+    rows = _query(path, campaign, start, end, last)
     if not rows:
         window = f" between {start or 'the beginning'} and {end or 'now'}"
         raise NotFoundError(
@@ -155,7 +160,7 @@ def read_logged(
 
 
 def _query(
-    path: Path, campaign: str, since: str | None, until: str | None
+    path: Path, campaign: str, since: str | None, until: str | None, last: int | None
 ) -> list[tuple[DecisionRecord, float | None, str | None]]:
     columns = ", ".join(f"d.{c}" for c in COLUMNS)
     clauses, params = ["d.campaign = ?"], [campaign]
@@ -163,18 +168,22 @@ def _query(
         if bound is not None:
             clauses.append(f"d.created_at {op} ?")
             params.append(bound)
+    order = "DESC" if last is not None else "ASC"
     query = (
         f"SELECT {columns}, o.outcome, o.observed_at FROM decisions d "
         "LEFT JOIN outcomes o ON o.decision_id = d.decision_id "
-        f"WHERE {' AND '.join(clauses)} ORDER BY d.created_at, d.decision_id"
+        f"WHERE {' AND '.join(clauses)} "
+        f"ORDER BY d.created_at {order}, d.decision_id {order}"
     )
+    if last is not None:
+        query += f" LIMIT {int(last)}"
     conn = connect(path, readonly=True)
     try:
         cursor = conn.execute(query, params)
         out: list[tuple[DecisionRecord, float | None, str | None]] = []
         while batch := cursor.fetchmany(_FETCH):
             out.extend((from_row(row[:-2]), row[-2], row[-1]) for row in batch)
-        return out
+        return out[::-1] if last is not None else out
     finally:
         conn.close()
 

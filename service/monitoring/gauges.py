@@ -62,8 +62,8 @@ class DriftCollector(Collector):  # type: ignore[misc]
         values = []
         for campaign, bundle in bundles.items():
             try:
-                logged = read_logged(path, campaign)
-                report = log_drift(logged, bundle, last=self._window)
+                logged = read_logged(path, campaign, last=self._window)
+                report = log_drift(logged, bundle)
             except UpshotError as err:
                 logger.debug("no drift for campaign %s: %s", campaign, err)
                 continue

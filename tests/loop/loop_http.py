@@ -13,8 +13,6 @@ from pathlib import Path
 
 import httpx
 
-HERE = Path(__file__).parent
-
 
 def free_port() -> int:
     with socket.socket() as s:
@@ -36,10 +34,9 @@ def serving(
         "UPSHOT_DECISION_LOG": str(log_path),
         "UPSHOT_COMPILED": "false",
         "OMP_NUM_THREADS": "1",
-        "PYTHONPATH": os.pathsep.join([str(HERE), os.environ.get("PYTHONPATH", "")]),
     }
     command = [
-        sys.executable, "-m", "uvicorn", "--factory", "loop_app:app",
+        sys.executable, "-m", "uvicorn", "--factory", "service.api.app:app_from_env",
         "--host", "127.0.0.1", "--port", str(port), "--log-level", "warning",
     ]  # fmt: skip
     output = log_path.with_name(log_path.name + ".server.txt")

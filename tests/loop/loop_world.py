@@ -182,19 +182,7 @@ def make_app(models_dir: Path, campaigns_file: Path, log_path: Path) -> Any:
         decision_log=str(log_path),
         compiled=False,
     )
-    app = create_app(settings)
-    _include_loop_routes(app)
-    return app
-
-
-def _include_loop_routes(app: Any) -> None:
-    # Until service/api/app.py registers the learning-loop routers.
-    from service.api.routes import lift, outcomes
-
-    paths = {getattr(r, "path", None) for r in app.routes}
-    for router in (outcomes.router, lift.router):
-        if not {r.path for r in router.routes} <= paths:
-            app.include_router(router)
+    return create_app(settings)
 
 
 async def score_columns(client: Any, sim: SimulatedCampaign, day: int) -> dict[str, Any]:

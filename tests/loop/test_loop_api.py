@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import AsyncIterator
 from typing import Any
 
+import anyio
 import numpy as np
 import pytest
 from loop_world import (
@@ -110,3 +111,16 @@ async def test_lift_errors_name_the_fix(api) -> None:
     assert bad.status_code == 422 and "ISO 8601" in bad.json()["error"]["message"]
     future = await client.get(f"/v1/campaigns/{CAMPAIGN}/lift", params={"since": "2100-01-01"})
     assert future.status_code == 404
+
+
+async def test_metrics_carry_drift_gauges(api) -> None:
+    client = api[0]
+    # The first scrape starts the background computation; later scrapes carry it.
+    for _ in range(100):
+        text = (await client.get("/metrics")).text
+        if 'upshot_drift_psi{campaign="renewal",kind="feature",name="tenure_months"}' in text:
+            break
+        await anyio.sleep(0.1)
+    else:
+        raise AssertionError("no drift gauge on /metrics after 10 s")
+    assert 'kind="score",name="email"' in text

@@ -47,6 +47,12 @@ def test_window_selects_one_day(world) -> None:
     np.testing.assert_array_equal(day1.action, first.action[order])
     np.testing.assert_array_equal(day1.outcome, first.outcome[order])
     np.testing.assert_allclose(day1.action_probs, first.probs[order])
+    # The most recent decisions, read from the end of the index, in log order.
+    everything = read_logged(world.log_path, CAMPAIGN)
+    tail = read_logged(world.log_path, CAMPAIGN, last=100)
+    assert [r.decision_id for r in tail.records] == [
+        r.decision_id for r in everything.records[-100:]
+    ]
 
 
 def test_plot_is_a_png(world, tmp_path) -> None:

@@ -2,6 +2,26 @@
 
 from __future__ import annotations
 
-from service.api.routes import admin, campaigns, health, metrics, models, rank, score
+from service.api.routes import (
+    admin,
+    campaigns,
+    health,
+    lift,
+    metrics,
+    models,
+    outcomes,
+    rank,
+    score,
+)
 
-__all__ = ["admin", "campaigns", "health", "metrics", "models", "rank", "score"]
+__all__ = [
+    "admin",
+    "campaigns",
+    "health",
+    "lift",
+    "metrics",
+    "models",
+    "outcomes",
+    "rank",
+    "score",
+]
