@@ -9,14 +9,13 @@ from __future__ import annotations
 
 import asyncio
 import logging
-from pathlib import Path
 
 from service.api.auth import KeyRing
 from service.api.metrics import Metrics
 from service.config import Settings
-from service.decisions import DecisionLog
+from service.decisions import DecisionLog, sqlite_path
 from service.registry import ModelRegistry
-from service.scoring import Catalog, bind_campaigns, load_catalog
+from service.scoring import Catalog, Committer, bind_campaigns, load_catalog
 
 __all__ = ["ServiceState"]
 
@@ -42,6 +41,7 @@ class ServiceState:
         self._log = log
         self._owns_log = log is None
         self._catalog: Catalog | None = None
+        self._committer: Committer | None = None
         self._lock = asyncio.Lock()
 
     @property
@@ -55,6 +55,11 @@ class ServiceState:
         return self._log
 
     @property
+    def committer(self) -> Committer:
+        assert self._committer is not None, "the app has not started"
+        return self._committer
+
+    @property
     def catalog(self) -> Catalog:
         assert self._catalog is not None, "the app has not started"
         return self._catalog
@@ -65,6 +70,7 @@ class ServiceState:
             self._registry = ModelRegistry(self.settings.models_dir)
         if self._log is None:
             self._log = await asyncio.to_thread(_open_log, self.settings.decision_log)
+        self._committer = Committer(self._log)
         self._set_catalog(
             await asyncio.to_thread(
                 load_catalog,
@@ -112,6 +118,5 @@ class ServiceState:
 
 
 def _open_log(location: str) -> DecisionLog:
-    if "://" not in location:
-        Path(location).parent.mkdir(parents=True, exist_ok=True)
+    sqlite_path(location).parent.mkdir(parents=True, exist_ok=True)
     return DecisionLog.open(location)

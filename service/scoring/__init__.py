@@ -18,10 +18,10 @@ from service.scoring.catalog import (
     load_catalog,
     readiness_problems,
 )
+from service.scoring.committer import Committer
 from service.scoring.engine import (
     Decided,
     Single,
-    commit,
     decide_many,
     decide_one,
     decision_columns,
@@ -35,6 +35,7 @@ from service.scoring.features import FeatureSchema, FeatureTable, InvalidFeature
 __all__ = [
     "BoundCampaign",
     "Catalog",
+    "Committer",
     "Decided",
     "Single",
     "Estimates",
@@ -43,7 +44,6 @@ __all__ = [
     "InvalidFeatures",
     "ServableModel",
     "bind_campaigns",
-    "commit",
     "decide_many",
     "decide_one",
     "decision_columns",

@@ -3,13 +3,12 @@
 :func:`decide_one` and :func:`decide_many` turn validated customers into decisions for
 one campaign; :func:`rank_many` also cuts a contact list. Each returns a
 :class:`Decided` whose ``records`` must be committed to the decision log
-(:func:`commit`) before anything is shown to a caller; the response views
+(:class:`~service.scoring.Committer`) before anything is shown to a caller; the response views
 (:func:`decision_rows`, :func:`decision_columns`, :func:`ranked_list`) only read it.
 """
 
 from __future__ import annotations
 
-import asyncio
 import hashlib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -19,8 +18,8 @@ import numpy as np
 import numpy.typing as npt
 import orjson
 
-from service.decisions import DecisionLog, DecisionRecord, decision_id, utc_now
-from service.errors import DataError, DecisionLogError, UpshotError
+from service.decisions import DecisionRecord, decision_id, utc_now
+from service.errors import DataError
 from service.policy import (
     DecisionBatch,
     RankResult,
@@ -38,7 +37,6 @@ from service.scoring.features import FeatureTable, InvalidFeatures
 __all__ = [
     "Decided",
     "Single",
-    "commit",
     "decide_many",
     "decide_one",
     "decision_columns",
@@ -46,10 +44,6 @@ __all__ = [
     "rank_many",
     "ranked_list",
 ]
-
-# Above this many records the log's row checks run in a worker thread, so that a large
-# batch does not hold up the event loop (and single-customer requests) meanwhile.
-_THREAD_RECORDS = 2000
 
 Array = npt.NDArray[Any]
 
@@ -321,30 +315,6 @@ def _records(decided: Decided, features: list[dict[str, Any]]) -> list[DecisionR
         )  # fmt: skip
         for (d_id, cid, f, v, tau, low, high, mu0, a, e, x, h, dnc, p, pr) in columns
     ]
-
-
-# -- committing ----------------------------------------------------------------------------
-
-
-async def commit(log: DecisionLog, records: list[DecisionRecord]) -> None:
-    """Commit records to the log; returns only once they are durable.
-
-    Raises
-    ------
-    DecisionLogError
-        The log could not commit them; nothing of this call was logged.
-    """
-    try:
-        if len(records) > _THREAD_RECORDS:
-            await asyncio.to_thread(log.append_sync, records)
-        else:
-            await log.append(records)
-    except DecisionLogError:
-        raise
-    except DataError:
-        raise
-    except UpshotError as err:
-        raise DecisionLogError(str(err)) from err
 
 
 # -- views ---------------------------------------------------------------------------------

@@ -12,7 +12,7 @@ from service.api.responses import OrjsonResponse
 from service.api.routes.score import ERRORS, THREAD_ROWS, count_decisions
 from service.api.routing import ScoringRoute
 from service.api.schemas import RankedList, RankRequest
-from service.scoring import Decided, commit, rank_many, ranked_list
+from service.scoring import Decided, rank_many, ranked_list
 
 router = APIRouter(prefix="/v1/rank", tags=["scoring"], route_class=ScoringRoute)
 
@@ -28,6 +28,6 @@ async def rank(body: RankRequest, state: StateDep, _: ScorerKey) -> OrjsonRespon
         return rank_many(bound, ids, table, values, capacity=body.capacity, budget=body.budget)
 
     decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await commit(state.log, decided.records)
+    await state.committer.commit(decided.records)
     count_decisions(state.metrics, bound.campaign.id, decided.records)
     return OrjsonResponse(ranked_list(decided))

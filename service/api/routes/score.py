@@ -22,7 +22,6 @@ from service.api.schemas import (
 from service.decisions import DecisionRecord
 from service.scoring import (
     Decided,
-    commit,
     decide_many,
     decide_one,
     decision_columns,
@@ -44,7 +43,7 @@ async def score(body: ScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResp
     bound = state.catalog.get(body.campaign)
     customer = body.customer
     one = decide_one(bound, customer.id, customer.features, customer.value)
-    await commit(state.log, one.records)
+    await state.committer.commit(one.records)
     count_decisions(state.metrics, bound.campaign.id, one.records)
     return OrjsonResponse(one.body)
 
@@ -60,7 +59,7 @@ async def score_batch(body: BatchScoreRequest, state: StateDep, _: ScorerKey) ->
         return decide_many(bound, ids, table, values)
 
     decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await commit(state.log, decided.records)
+    await state.committer.commit(decided.records)
     count_decisions(state.metrics, bound.campaign.id, decided.records)
     if body.columns is not None:
         return OrjsonResponse(decision_columns(decided))

@@ -1,0 +1,101 @@
+"""Commit the decisions of concurrent requests to the log together.
+
+Every decision must be durable before it is returned, and each commit of the log costs
+a transaction and an fsync whatever its size. The log's writer already groups appends
+that queue up while it commits; the :class:`Committer` also groups the requests that
+reach their commit in the same turn of the event loop into one append, so a busy
+service makes fewer, larger transactions. No request waits for a timer: the group is
+handed to the log on the next turn of the loop.
+"""
+
+from __future__ import annotations
+
+import asyncio
+from collections.abc import Awaitable
+
+from service.decisions import DecisionLog, DecisionRecord
+from service.errors import DataError, DecisionLogError, UpshotError
+
+__all__ = ["Committer"]
+
+# Above this many records the log's row checks run in a worker thread, so that a large
+# batch does not hold up the event loop (and single-customer requests) meanwhile.
+_THREAD_RECORDS = 2000
+
+_Waiter = tuple[list[DecisionRecord], "asyncio.Future[None]"]
+
+
+class Committer:
+    """Durable commits of decision records, grouped across concurrent requests."""
+
+    def __init__(self, log: DecisionLog) -> None:
+        self.log = log
+        self._pending: list[_Waiter] = []
+        self._tasks: set[asyncio.Task[None]] = set()
+
+    async def commit(self, records: list[DecisionRecord]) -> None:
+        """Return once ``records`` are committed.
+
+        Raises
+        ------
+        DataError
+            A record is invalid (nothing of this call was logged).
+        DecisionLogError
+            The log could not commit (nothing of this call was logged).
+        """
+        if not records:
+            return
+        if len(records) > _THREAD_RECORDS:
+            await _guard(asyncio.to_thread(self.log.append_sync, records))
+            return
+        loop = asyncio.get_running_loop()
+        waiter: asyncio.Future[None] = loop.create_future()
+        if not self._pending:
+            loop.call_soon(self._flush)
+        self._pending.append((records, waiter))
+        await waiter
+
+    def _flush(self) -> None:
+        group, self._pending = self._pending, []
+        task = asyncio.ensure_future(self._append(group))
+        self._tasks.add(task)  # keep a reference until it is done
+        task.add_done_callback(self._tasks.discard)
+
+    async def _append(self, group: list[_Waiter]) -> None:
+        try:
+            await _guard(self.log.append([r for records, _ in group for r in records]))
+        except DataError:
+            # Some request's records are invalid: commit each request on its own, so
+            # only that request fails.
+            for records, waiter in group:
+                try:
+                    await _guard(self.log.append(records))
+                except UpshotError as err:
+                    _settle(waiter, err)
+                else:
+                    _settle(waiter, None)
+        except UpshotError as err:
+            for _, waiter in group:
+                _settle(waiter, err)
+        else:
+            for _, waiter in group:
+                _settle(waiter, None)
+
+
+async def _guard(append: Awaitable[object]) -> None:
+    """Await an append, turning a database failure into :class:`DecisionLogError`."""
+    try:
+        await append
+    except (DataError, DecisionLogError):
+        raise
+    except UpshotError as err:
+        raise DecisionLogError(str(err)) from err
+
+
+def _settle(waiter: asyncio.Future[None], error: BaseException | None) -> None:
+    if waiter.done():  # the request was cancelled (client went away)
+        return
+    if error is None:
+        waiter.set_result(None)
+    else:
+        waiter.set_exception(error)
