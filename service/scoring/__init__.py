@@ -4,7 +4,8 @@ Data flows one way: request features -> validation against the model's feature s
 (:mod:`~service.scoring.features`) -> model (compiled fast path when available,
 :mod:`~service.scoring.estimates`) -> policy (:func:`service.policy.decide` and
 :func:`service.policy.rank`) -> decision records -> decision log -> response
-(:mod:`~service.scoring.engine`). :mod:`~service.scoring.catalog` binds each campaign to
+(:mod:`~service.scoring.engine`, :mod:`~service.scoring.committer`,
+:mod:`~service.scoring.views`). :mod:`~service.scoring.catalog` binds each campaign to
 its verified model version. The HTTP layer, the batch endpoint and the ranked list all
 share this path.
 """
@@ -19,18 +20,10 @@ from service.scoring.catalog import (
     readiness_problems,
 )
 from service.scoring.committer import Committer
-from service.scoring.engine import (
-    Decided,
-    Single,
-    decide_many,
-    decide_one,
-    decision_columns,
-    decision_rows,
-    rank_many,
-    ranked_list,
-)
+from service.scoring.engine import Decided, Single, decide_many, decide_one, rank_many
 from service.scoring.estimates import Estimates, ServableModel, servable
 from service.scoring.features import FeatureSchema, FeatureTable, InvalidFeatures
+from service.scoring.views import decision_columns, decision_rows, ranked_list
 
 __all__ = [
     "BoundCampaign",
