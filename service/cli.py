@@ -20,6 +20,8 @@ from service.errors import UpshotError
 __all__ = ["COMMANDS", "build_parser", "main"]
 
 COMMANDS: tuple[str, ...] = (
+    "serve",
+    "keys",
     "train",
     "models",
     "report",
