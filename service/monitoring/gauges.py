@@ -41,15 +41,14 @@ class DriftCollector(Collector):  # type: ignore[misc]
         self._lock = threading.Lock()
         self._running = False
 
+    def describe(self) -> Iterator[GaugeMetricFamily]:
+        # Registration asks for names only; without this it would call collect() and
+        # start a refresh before the app (and its log) exists.
+        yield _family()
+
     def collect(self) -> Iterator[GaugeMetricFamily]:
         self._maybe_refresh()
-        family = GaugeMetricFamily(
-            "upshot_drift_psi",
-            "Population stability index of a feature or score over the last decisions vs "
-            "the serving model's training reference (0.1 watch, 0.25 act: common "
-            "practice, no source).",
-            labels=["campaign", "kind", "name"],
-        )
+        family = _family()
         with self._lock:
             values = list(self._values)
         for campaign, kind, name, value in values:
@@ -87,3 +86,13 @@ class DriftCollector(Collector):  # type: ignore[misc]
         finally:
             with self._lock:
                 self._running = False
+
+
+def _family() -> GaugeMetricFamily:
+    return GaugeMetricFamily(
+        "upshot_drift_psi",
+        "Population stability index of a feature or score over the last decisions vs "
+        "the serving model's training reference (0.1 watch, 0.25 act: common "
+        "practice, no source).",
+        labels=["campaign", "kind", "name"],
+    )
