@@ -25,7 +25,11 @@ DESIGNS = ["groups", "groups_two_arms", "larkspur", "nw_a", "nw_b", "nw_c", "nw_
 LEARNER_NAMES = ["t", "s", "x", "dr", "transformed"]
 
 
-def _cell(design: str, learner: str, n_train: int, n_test: int, seed: int) -> dict[str, Any]:
+def _cell(
+    design: str, learner: str, n_train: int, n_test: int, seed: int, threads: int
+) -> dict[str, Any]:
+    from threadpoolctl import threadpool_limits
+
     from service.evaluation import qini_coefficient
     from service.simulation import simulate
     from service.uplift import make_learner
@@ -34,7 +38,8 @@ def _cell(design: str, learner: str, n_train: int, n_test: int, seed: int) -> di
     test = simulate(design, n=n_test, random_state=seed + 1000)
     before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     start = time.perf_counter()
-    model = make_learner(learner, random_state=seed).fit(train.X, train.y, train.treatment)
+    with threadpool_limits(threads):
+        model = make_learner(learner, random_state=seed).fit(train.X, train.y, train.treatment)
     fit_seconds = time.perf_counter() - start
     peak_mb = (resource.getrusage(resource.RUSAGE_SELF).ru_maxrss - before) / 1024
     tau = model.predict(test.X)
@@ -65,12 +70,18 @@ def main() -> None:
     parser.add_argument("--train", type=int, default=20000)
     parser.add_argument("--test", type=int, default=50000)
     parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument(
+        "--threads", type=int, default=1, help="numeric-library threads per fit (default 1)"
+    )
     parser.add_argument("--designs", nargs="*", default=DESIGNS)
     parser.add_argument("--learners", nargs="*", default=LEARNER_NAMES)
     parser.add_argument("--out", type=Path, default=Path("bench/results/quality.json"))
     args = parser.parse_args()
     rows = []
-    print(f"train rows {args.train}, test rows {args.test}, seed {args.seed}, base gbm")
+    print(
+        f"train rows {args.train}, test rows {args.test}, seed {args.seed}, base gbm, "
+        f"{args.threads} thread(s) per fit"
+    )
     header = (
         f"{'design':<16}{'learner':<13}{'Qini/oracle':>12}{'PEHE':>9}{'fit s':>8}{'peak MB':>9}"
     )
@@ -80,7 +91,7 @@ def main() -> None:
         for learner in args.learners:
             with ProcessPoolExecutor(max_workers=1) as pool:
                 row = pool.submit(
-                    _cell, design, learner, args.train, args.test, args.seed
+                    _cell, design, learner, args.train, args.test, args.seed, args.threads
                 ).result()
             rows.append(row)
             print(
