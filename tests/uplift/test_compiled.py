@@ -29,7 +29,7 @@ DESIGNS = {
     # one arm, binary outcome (classifier outcome models)
     "one_arm": {"n": 2000, "arms": ("mail",), "binary": True},
     # two arms, continuous outcome (regressor outcome models)
-    "two_arms": {"n": 1000, "arms": ("mail", "call"), "binary": False},
+    "two_arms": {"n": 800, "arms": ("mail", "call"), "binary": False},
 }
 
 
