@@ -134,13 +134,20 @@ def _codes(column: pd.Series, categories: tuple[str, ...]) -> np.ndarray:
 
 def _numeric(name: str, column: pd.Series) -> np.ndarray:
     if pd.api.types.is_numeric_dtype(column) and not pd.api.types.is_bool_dtype(column):
-        return column.to_numpy(dtype=float, na_value=np.nan)
-    converted = pd.to_numeric(column, errors="coerce")
-    bad = converted.isna() & column.notna()
-    if bad.any():
-        example = column[bad].iloc[0]
+        values = column.to_numpy(dtype=float, na_value=np.nan)
+    else:
+        converted = pd.to_numeric(column, errors="coerce")
+        bad = converted.isna() & column.notna()
+        if bad.any():
+            example = column[bad].iloc[0]
+            raise DataError(
+                f"Feature column {name!r} is numeric in training but holds {example!r}; "
+                "send a number or leave the value empty."
+            )
+        values = converted.to_numpy(dtype=float, na_value=np.nan)
+    if np.isinf(values).any():
         raise DataError(
-            f"Feature column {name!r} is numeric in training but holds {example!r}; "
-            "send a number or leave the value empty."
+            f"Feature column {name!r} holds an infinite value; send a finite number or "
+            "leave the value empty (missing)."
         )
-    return converted.to_numpy(dtype=float, na_value=np.nan)
+    return values

@@ -76,6 +76,13 @@ def test_numpy_input_gets_generated_names() -> None:
     assert learner.predict(np.zeros((3, 2))).shape == (3, 1)
 
 
+def test_infinite_feature_value_is_refused_at_scoring() -> None:
+    X, y, t = _campaign()
+    learner = TLearner(base="linear").fit(X, y, t)
+    with pytest.raises(DataError, match="'tenure' holds an infinite value"):
+        learner.predict(X.iloc[:2].assign(tenure=[1.0, np.inf]))
+
+
 def test_unseen_category_and_missing_values_are_scored() -> None:
     X, y, t = _campaign()
     learner = TLearner(random_state=0).fit(X, y, t)
