@@ -21,11 +21,14 @@ COPY campaigns ./campaigns
 RUN mkdir -p /data/models /data/log && chown -R upshot:upshot /data
 
 # Configuration is by environment only; models and the decision log live on volumes.
+# The compiled scoring kernels cache their machine code in NUMBA_CACHE_DIR: site-packages
+# is not writable by the service user.
 ENV UPSHOT_HOST=0.0.0.0 \
     UPSHOT_PORT=8000 \
     UPSHOT_MODELS_DIR=/data/models \
     UPSHOT_DECISION_LOG=/data/log/decisions.sqlite3 \
-    UPSHOT_CAMPAIGNS_FILE=/app/campaigns/larkspur.toml
+    UPSHOT_CAMPAIGNS_FILE=/app/campaigns/larkspur.toml \
+    NUMBA_CACHE_DIR=/tmp/numba-cache
 VOLUME ["/data/models", "/data/log"]
 
 USER upshot
