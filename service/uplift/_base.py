@@ -193,7 +193,6 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
         )
         if self.propensity == "estimate" and not given:
             data.propensity = self._estimate_propensity(data)
-        self.propensity_mean_ = data.propensity.mean(axis=0)
         return data
 
     def _estimate_propensity(self, data: FitData) -> np.ndarray:
