@@ -7,6 +7,7 @@ outcome of each decision (:class:`OutcomeStore`: idempotent, all-or-nothing on c
 
 from __future__ import annotations
 
+from service.decisions.columns import DecisionColumns
 from service.decisions.log import DecisionLog
 from service.decisions.outcomes import (
     Outcome,
@@ -22,6 +23,7 @@ from service.decisions.schema import SCHEMA_VERSION, sqlite_path
 __all__ = [
     "MODES",
     "SCHEMA_VERSION",
+    "DecisionColumns",
     "DecisionLog",
     "DecisionRecord",
     "Outcome",

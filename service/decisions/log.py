@@ -11,6 +11,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from types import TracebackType
 
+from service.decisions.columns import DecisionColumns
 from service.decisions.record import DecisionRecord, from_row, to_row
 from service.decisions.schema import SELECT, connect, create_schema, sqlite_path
 from service.decisions.writer import GroupCommitWriter
@@ -81,8 +82,28 @@ class DecisionLog:
         if future is not None:
             future.result()
 
+    async def append_columns(self, batches: Sequence[DecisionColumns]) -> None:
+        """:meth:`append` for decisions in column form (the batch path); all or nothing."""
+        future = self._submit_columns(batches)
+        if future is not None:
+            await asyncio.wrap_future(future)
+
+    def append_columns_sync(self, batches: Sequence[DecisionColumns]) -> None:
+        """:meth:`append_columns` for synchronous code; blocks until committed."""
+        future = self._submit_columns(batches)
+        if future is not None:
+            future.result()
+
     def _submit(self, records: Sequence[DecisionRecord]) -> concurrent.futures.Future[int] | None:
         rows = [to_row(record) for record in records]
+        return self._writer.submit(rows) if rows else None
+
+    def _submit_columns(
+        self, batches: Sequence[DecisionColumns]
+    ) -> concurrent.futures.Future[int] | None:
+        for batch in batches:
+            batch.check()
+        rows = [row for batch in batches for row in batch.rows()]
         return self._writer.submit(rows) if rows else None
 
     def get(self, decision_id: str) -> DecisionRecord | None:
