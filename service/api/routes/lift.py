@@ -3,7 +3,8 @@
 A lift report reads every decision of its window, so it is bounded three ways: it needs
 an ``analyst`` (or ``admin``) key rather than the scorer keys CRM systems hold, at most
 ``UPSHOT_MAX_HEAVY_READS`` run at once (429 with ``Retry-After`` beyond), and without
-``since`` it covers the last ``UPSHOT_LIFT_WINDOW_DAYS`` days.
+``since`` it covers the ``UPSHOT_LIFT_WINDOW_DAYS`` days before ``until`` (without
+``until``: from midnight UTC that many days ago).
 """
 
 from __future__ import annotations
@@ -40,7 +41,7 @@ async def campaign_lift_report(
         str | None,
         Query(
             description="ISO 8601; decisions from then on (default: UPSHOT_LIFT_WINDOW_DAYS, "
-            "30 unless configured, before `until`).",
+            "30 unless configured, before `until`, or before today's midnight UTC).",
             max_length=64,
         ),
     ] = None,
@@ -58,9 +59,10 @@ async def campaign_lift_report(
             f"{sorted(catalog.campaigns)}."
         )
     end = _moment(until, "until")
-    start = _moment(since, "since") or _days_before(
-        end or datetime.now(UTC), state.settings.lift_window_days
-    )
+    # Without `until`, count from today's midnight (UTC): repeated calls on one day read
+    # the same window.
+    reference = end or datetime.now(UTC).replace(hour=0, minute=0, second=0, microsecond=0)
+    start = _moment(since, "since") or _days_before(reference, state.settings.lift_window_days)
 
     def work() -> dict[str, Any]:
         logged = read_logged(log.path, campaign_id, since=start, until=end)
