@@ -165,9 +165,10 @@ def main() -> int:
     c = args.connections
     plan = [("normal", c), ("3x", 3 * c), (f"{args.heavy // c}x", args.heavy), ("normal again", c)]
     rows = []
-    with tempfile.TemporaryDirectory() as tmp, serve(
-        args.models.resolve(), Path(tmp), UPSHOT_MAX_IN_FLIGHT=str(limit)
-    ) as url:
+    with (
+        tempfile.TemporaryDirectory() as tmp,
+        serve(args.models.resolve(), Path(tmp), UPSHOT_MAX_IN_FLIGHT=str(limit)) as url,
+    ):
         script = Path(tmp) / "score.lua"
         script.write_text(_LUA % (body, key), encoding="utf-8")
         _wrk(url, script, c, 3)  # warm-up: compiled paths, connections, page cache
