@@ -8,7 +8,7 @@ response is checked for 5xx and against the declared status codes, content types
 headers and body schemas. Target: 0 server errors and 0 violations over >= 20,000
 requests.
 
-    python bench/fuzz.py [--examples 220] [--seed 0] [--models models]
+    python bench/fuzz.py [--examples 300] [--seed 0] [--models models]
 """
 
 from __future__ import annotations
@@ -25,7 +25,7 @@ sys.path.insert(0, str(HERE.parent / "tests" / "api"))  # the shared harness
 
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--examples", type=int, default=220, help="cases per operation and mode")
+    parser.add_argument("--examples", type=int, default=300, help="cases per operation and mode")
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--models", type=Path, default=HERE.parent / "models")
     args = parser.parse_args()

@@ -62,7 +62,7 @@ class Settings(BaseSettings):
     api_keys_file: Path | None = None
     max_body_bytes: int = Field(64 * _MIB, ge=1024, le=1024 * _MIB)
     max_batch: int = Field(100_000, ge=1, le=1_000_000)
-    max_in_flight: int = Field(64, ge=1, le=100_000)
+    max_in_flight: int = Field(32, ge=1, le=100_000)
     max_heavy_reads: int = Field(2, ge=1, le=64)
     lift_window_days: int = Field(30, ge=1, le=3660)
     compiled: bool = True

@@ -3,7 +3,8 @@
 :class:`RequestLimits` is plain ASGI, outside everything else, and costs a comparison
 and two counter updates per request:
 
-* **Shedding.** At most ``max_in_flight`` requests are in progress in this worker;
+* **Shedding.** At most ``max_in_flight`` requests are in progress in this worker
+  (counted from the moment the event loop first runs them, queued work included);
   beyond that a request is answered at once with 503 ``overloaded`` and ``Retry-After``,
   instead of queueing until its caller gives up. The probes ``/healthz`` and ``/metrics``
   are never shed, so an overloaded worker is not mistaken for a dead one.
@@ -21,6 +22,7 @@ concurrent reads over the whole decision log (429 with ``Retry-After`` beyond it
 
 from __future__ import annotations
 
+import asyncio
 import logging
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -112,6 +114,10 @@ class RequestLimits:
                 return
         self.in_flight += 1
         try:
+            # Yield once before any work: every request that arrived in this turn of the
+            # event loop is then counted before the first one computes, so the count sees
+            # the queue rather than only the requests already awaiting the log.
+            await asyncio.sleep(0)
             await self._guarded(scope, receive, send)
         finally:
             self.in_flight -= 1

@@ -7,6 +7,7 @@ declared contract. ``python bench/fuzz.py`` runs the same harness for >= 20,000 
 
 from __future__ import annotations
 
+import http.client
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -54,3 +55,28 @@ def test_the_documented_examples_work_without_edits(url: str) -> None:
                 assert response.status_code == 200, (path, response.text)
                 sent += 1
     assert sent == 6
+
+
+def test_refused_inputs_keep_the_connection_open(url: str) -> None:
+    # The probe's reproducers: each answered 500 and reset the keep-alive connection.
+    host, port = url.removeprefix("http://").split(":")
+    connection = http.client.HTTPConnection(host, int(port), timeout=30)
+    headers = {"Content-Type": "application/json", **key_headers("scorer")["scorer"]}
+    c = '{"campaign":"' + DEMO_CAMPAIGN + '",'
+    huge = "1" + "0" * 309
+    bodies = [
+        ("/v1/rank", c + '"capacity":18446744073709551616,"customers":[{"id":"D5"}]}'),
+        ("/v1/score", c + '"customer":{"id":"D6","features":{"tenure_months":' + huge + "}}}"),
+        ("/v1/score", c + '"customer":{"id":"D7","features":{}}}'),
+    ]
+    statuses, sockets = [], set()
+    for path, body in bodies:
+        connection.request("POST", path, body=body, headers=headers)
+        response = connection.getresponse()
+        response.read()
+        statuses.append(response.status)
+        assert response.getheader("connection") != "close"
+        sockets.add(id(connection.sock))
+    connection.close()
+    assert statuses == [422, 422, 200]
+    assert len(sockets) == 1
