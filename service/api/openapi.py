@@ -11,7 +11,7 @@ from typing import Any
 
 from service.api.schemas import ErrorBody
 
-__all__ = ["error_responses", "request_examples"]
+__all__ = ["error_responses", "request_examples", "with_example"]
 
 _RETRY_AFTER = {
     "Retry-After": {
@@ -47,6 +47,13 @@ def error_responses(*statuses: int) -> dict[int | str, dict[str, Any]]:
             entry["headers"] = _RETRY_AFTER
         out[status] = entry
     return out
+
+
+def with_example(
+    responses: dict[int | str, dict[str, Any]], example: Any
+) -> dict[int | str, dict[str, Any]]:
+    """``responses`` plus an example of the 200 answer."""
+    return {**responses, 200: {"content": {"application/json": {"example": example}}}}
 
 
 def request_examples(**examples: Any) -> dict[str, Any]:

@@ -14,8 +14,10 @@ import pytest
 from api_support import CAMPAIGN, CAMPAIGN_TOML, MODEL, customers, features_of, started
 
 from service.api.auth import hash_key, new_key
+from service.api.examples import RANKED_LIST
 from service.api.limits import RequestLimits
 from service.api.metrics import Metrics
+from service.api.schemas import Decision, RankedList
 from service.config import Settings
 from service.decisions import DecisionLog
 
@@ -114,6 +116,10 @@ async def test_openapi_declares_every_body_and_status(client: httpx.AsyncClient)
                     assert schema == {"$ref": "#/components/schemas/ErrorBody"}, where
     score = doc["paths"]["/v1/score"]["post"]["requestBody"]["content"]["application/json"]
     assert score["examples"]["demo"]["value"]["campaign"] == "larkspur-renewal"
+    # The response examples are answers of the demo model: they fit the declared models.
+    answer = doc["paths"]["/v1/score"]["post"]["responses"]["200"]["content"]
+    assert Decision.model_validate(answer["application/json"]["example"]).campaign
+    RankedList.model_validate(RANKED_LIST)
 
 
 # -- 4. auth before the body ---------------------------------------------------------------

@@ -8,9 +8,9 @@ from fastapi import APIRouter
 
 from service.api.candidates import candidates, check_batch_size
 from service.api.deps import ScorerKey, StateDep
-from service.api.examples import BATCH_COLUMNS, BATCH_ROWS, SCORE
+from service.api.examples import BATCH_COLUMNS, BATCH_ROWS, DECISION, SCORE
 from service.api.metrics import Metrics
-from service.api.openapi import error_responses, request_examples
+from service.api.openapi import error_responses, request_examples, with_example
 from service.api.responses import OrjsonResponse
 from service.api.routing import ScoringRoute
 from service.api.schemas import (
@@ -37,7 +37,10 @@ THREAD_ROWS = 2000
 
 
 @router.post(
-    "", response_model=Decision, responses=ERRORS, openapi_extra=request_examples(demo=SCORE)
+    "",
+    response_model=Decision,
+    responses=with_example(ERRORS, DECISION),
+    openapi_extra=request_examples(demo=SCORE),
 )
 async def score(body: ScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResponse:
     """Decide whether and how to contact one customer; the decision is logged first."""
