@@ -20,8 +20,9 @@ from service.errors import ConfigError
 
 __all__ = ["ROLES", "ApiKey", "Settings", "is_loopback", "load_settings", "parse_api_keys"]
 
-ROLES = ("scorer", "admin")
-"""API key roles; ``admin`` may do everything ``scorer`` may."""
+ROLES = ("scorer", "analyst", "admin")
+"""API key roles: ``scorer`` scores and lists, ``analyst`` also reads the heavy reports
+over the decision log (realized lift), ``admin`` may do everything."""
 
 _DIGEST = re.compile(r"^[0-9a-f]{64}$")
 _MIB = 1024 * 1024
@@ -43,6 +44,11 @@ class Settings(BaseSettings):
     lines, in ``UPSHOT_API_KEYS`` and/or a file named by ``UPSHOT_API_KEYS_FILE`` (one
     entry per line, ``#`` starts a comment). Only the SHA-256 digest of a key is ever
     stored; ``upshot keys new`` prints a fresh key and its entry.
+
+    Bounds on work: ``max_in_flight`` requests in progress per worker (beyond it 503 with
+    ``Retry-After`` at once), ``max_heavy_reads`` concurrent reads over the decision log
+    (realized lift; beyond it 429 with ``Retry-After``), and ``lift_window_days``, the
+    window a lift report covers when the request names no ``since``.
     """
 
     model_config = SettingsConfigDict(env_prefix="UPSHOT_", frozen=True, extra="forbid")
@@ -56,6 +62,9 @@ class Settings(BaseSettings):
     api_keys_file: Path | None = None
     max_body_bytes: int = Field(64 * _MIB, ge=1024, le=1024 * _MIB)
     max_batch: int = Field(100_000, ge=1, le=1_000_000)
+    max_in_flight: int = Field(32, ge=1, le=100_000)
+    max_heavy_reads: int = Field(2, ge=1, le=64)
+    lift_window_days: int = Field(30, ge=1, le=3660)
     compiled: bool = True
     log_level: Literal["debug", "info", "warning", "error"] = "info"
 

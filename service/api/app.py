@@ -15,7 +15,7 @@ from fastapi import FastAPI
 from service import __version__
 from service.api.auth import KeyRing
 from service.api.errors import install_error_handlers
-from service.api.limits import BodySizeLimit
+from service.api.limits import RequestLimits
 from service.api.metrics import Metrics, MetricsMiddleware
 from service.api.responses import OrjsonResponse
 from service.api.routes import (
@@ -115,8 +115,14 @@ def create_app(
     app.state.service = state
     app.state.metrics = metrics_
     install_error_handlers(app)
-    app.add_middleware(BodySizeLimit, max_bytes=settings.max_body_bytes)
     app.add_middleware(MetricsMiddleware, metrics=metrics_)
+    # Outermost: shedding and the body limit act before any other work is done.
+    app.add_middleware(
+        RequestLimits,
+        max_in_flight=settings.max_in_flight,
+        max_body_bytes=settings.max_body_bytes,
+        metrics=metrics_,
+    )
     for module in (health, score, rank, models, campaigns, admin, metrics, outcomes, lift):
         app.include_router(module.router)
     return app

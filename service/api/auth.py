@@ -1,9 +1,10 @@
 """API keys: bearer tokens checked against stored SHA-256 digests, with roles.
 
 A key is sent as ``Authorization: Bearer <key>``. The service keeps only digests
-(``sha256(key)``), so a leaked configuration does not leak keys. ``admin`` keys may do
-everything ``scorer`` keys may. Without any configured key, authentication is off: the
-settings then refuse any host but loopback, and start-up logs a loud warning.
+(``sha256(key)``), so a leaked configuration does not leak keys. Roles are ordered:
+``analyst`` keys may do everything ``scorer`` keys may, and ``admin`` keys everything.
+Without any configured key, authentication is off: the settings then refuse any host but
+loopback, and start-up logs a loud warning.
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ from service.config import ROLES, ApiKey
 __all__ = ["KeyRing", "Principal", "hash_key", "new_key"]
 
 _PREFIX = "ups_"
+_RANK = {role: rank for rank, role in enumerate(ROLES)}
 
 
 @dataclass(frozen=True)
@@ -31,7 +33,7 @@ class Principal:
 
     def allows(self, role: str) -> bool:
         """Whether this principal may act in ``role``."""
-        return self.role == role or self.role == "admin"
+        return _RANK[self.role] >= _RANK[role]
 
 
 ANONYMOUS = Principal(name="anonymous-loopback", role="admin")

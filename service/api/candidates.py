@@ -7,6 +7,7 @@ from typing import Any
 from service.api.errors import ApiError
 from service.api.schemas import BatchScoreRequest
 from service.scoring import FeatureSchema, FeatureTable, InvalidFeatures
+from service.scoring.features import number_problem
 
 __all__ = ["Candidates", "batch_size", "candidates", "check_batch_size"]
 
@@ -58,7 +59,23 @@ def candidates(body: BatchScoreRequest, schema: FeatureSchema) -> Candidates:
             [{"row": None, "feature": "value", "problem": f"has {len(values)} entries for "
               f"{len(ids)} ids; send one per customer (null for the campaign's value)"}]
         )  # fmt: skip
+    if values is not None:
+        _check_values(values)
     return ids, schema.table_from_columns(columns, len(ids)), values
+
+
+def _check_values(values: list[Any]) -> None:
+    problems = []
+    for i, v in enumerate(values):
+        if v is None:
+            continue
+        problem = number_problem(v, missing="null for the campaign's value")
+        if problem is None and v <= 0:
+            problem = f"must be a number > 0, got {v!r}; send null for the campaign's value"
+        if problem is not None:
+            problems.append({"row": i, "feature": "value", "problem": problem})
+    if problems:
+        raise InvalidFeatures(problems)
 
 
 def _ids(raw: list[Any]) -> list[str]:

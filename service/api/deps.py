@@ -19,6 +19,7 @@ from service.scoring import Catalog
 
 __all__ = [
     "AdminKey",
+    "AnalystKey",
     "CatalogDep",
     "LogDep",
     "RegistryDep",
@@ -77,6 +78,14 @@ async def require_scorer(
     return _authenticate(state, credentials, "scorer")
 
 
+async def require_analyst(
+    state: StateDep,
+    credentials: Annotated[HTTPAuthorizationCredentials | None, Security(_bearer)],
+) -> Principal:
+    """A key with role analyst (or admin): heavy reads over the decision log."""
+    return _authenticate(state, credentials, "analyst")
+
+
 async def require_admin(
     state: StateDep,
     credentials: Annotated[HTTPAuthorizationCredentials | None, Security(_bearer)],
@@ -86,4 +95,5 @@ async def require_admin(
 
 
 ScorerKey = Annotated[Principal, Depends(require_scorer)]
+AnalystKey = Annotated[Principal, Depends(require_analyst)]
 AdminKey = Annotated[Principal, Depends(require_admin)]

@@ -53,6 +53,7 @@ _BY_STATUS = {
     405: "method_not_allowed",
     406: "not_acceptable",
     413: "payload_too_large",
+    429: "too_many_requests",
     415: "unsupported_media_type",
     422: "invalid_input",
     503: "not_ready",
@@ -137,10 +138,7 @@ def _problem(error: Any) -> dict[str, Any]:
     problem: dict[str, Any] = {"field": ".".join(loc) or "body", "problem": error.get("msg", "")}
     if error.get("type") == "json_invalid":
         problem["field"] = f"body (at character {loc[0]})" if loc else "body"
-        problem["problem"] = (
-            "the body is not valid JSON (NaN and Infinity are not JSON; send null for a "
-            "missing value)"
-        )
+        problem["problem"] = f"the body is not valid JSON ({error.get('msg', 'malformed')})"
     return problem
 
 

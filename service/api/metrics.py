@@ -59,6 +59,14 @@ class Metrics:
             "upshot_model_info", "The model version serving each campaign (value 1).",
             ["campaign", "model", "version"], registry=self.registry,
         )  # fmt: skip
+        self.shed = Counter(
+            "upshot_http_shed", "Requests refused at once to bound the work in progress, by "
+            "reason: in_flight (503) or heavy_read (429).", ["reason"], registry=self.registry,
+        )  # fmt: skip
+        self.in_flight = Gauge(
+            "upshot_http_in_flight", "Requests in progress in this worker.",
+            registry=self.registry,
+        )  # fmt: skip
         self._counts: dict[str, tuple[int, int]] = {}
         self._decision_children: dict[tuple[str, str, str], Any] = {}
 

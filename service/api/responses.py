@@ -5,17 +5,20 @@ from __future__ import annotations
 from typing import Any
 
 import orjson
-from starlette.responses import Response
+from starlette.responses import JSONResponse
 
 __all__ = ["OrjsonResponse"]
 
 _OPTIONS = orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS
 
 
-class OrjsonResponse(Response):
-    """``application/json`` rendered by orjson (numpy arrays and scalars included)."""
+class OrjsonResponse(JSONResponse):
+    """``application/json`` rendered by orjson (numpy arrays and scalars included).
 
-    media_type = "application/json"
+    It subclasses :class:`~starlette.responses.JSONResponse` so that FastAPI declares each
+    route's response model in the OpenAPI document (for any other class it declares a
+    string).
+    """
 
     def render(self, content: Any) -> bytes:
         return orjson.dumps(content, option=_OPTIONS)

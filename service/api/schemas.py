@@ -46,6 +46,8 @@ FeatureValue = float | int | str | bool | None
 CustomerId = Annotated[str, Field(min_length=1, max_length=256)]
 _Name = Annotated[str, Field(min_length=1, max_length=200)]
 _Value = Annotated[float, Field(gt=0, allow_inf_nan=False)]
+MAX_CAPACITY = 1_000_000_000
+"""Largest ``capacity`` of a ranked list (far above any batch the service accepts)."""
 
 
 class _Strict(BaseModel):
@@ -99,7 +101,7 @@ class RankRequest(BatchScoreRequest):
     Without either, the campaign's default capacity applies.
     """
 
-    capacity: int | None = Field(None, ge=0, description="Most contacts to make.")
+    capacity: int | None = Field(None, ge=0, le=MAX_CAPACITY, description="Most contacts to make.")
     budget: float | None = Field(
         None, ge=0, allow_inf_nan=False, description="Most contact cost to spend."
     )

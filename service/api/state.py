@@ -11,11 +11,13 @@ import asyncio
 import logging
 
 from service.api.auth import KeyRing
+from service.api.limits import HeavyReads
 from service.api.metrics import Metrics
 from service.config import Settings
 from service.decisions import DecisionLog, sqlite_path
 from service.registry import ModelRegistry
 from service.scoring import Catalog, Committer, bind_campaigns, load_catalog
+from service.scoring.catalog import validated_catalog
 
 __all__ = ["ServiceState"]
 
@@ -37,6 +39,7 @@ class ServiceState:
         self.settings = settings
         self.keyring = keyring
         self.metrics = metrics
+        self.heavy_reads = HeavyReads(settings.max_heavy_reads, metrics)
         self._registry = registry
         self._log = log
         self._owns_log = log is None
@@ -81,10 +84,15 @@ class ServiceState:
         )
 
     async def reload(self) -> Catalog:
-        """Re-read the campaign file and rebind models; the old catalog serves meanwhile."""
+        """Re-read the campaign file and rebind models; the old catalog serves meanwhile.
+
+        The new catalog replaces the old one only when every campaign can serve (every
+        named model loads and verifies on disk); otherwise a
+        :class:`~service.scoring.catalog.CatalogRefused` leaves the old one in place.
+        """
         async with self._lock:
             catalog = await asyncio.to_thread(
-                load_catalog,
+                validated_catalog,
                 self.registry,
                 self.settings.campaigns_file,
                 compile=self.settings.compiled,

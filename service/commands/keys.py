@@ -6,6 +6,7 @@ import argparse
 import re
 from typing import Any
 
+from service.config import ROLES
 from service.errors import ConfigError
 
 __all__ = ["register"]
@@ -18,13 +19,13 @@ def register(subparsers: Any) -> None:
     parser = subparsers.add_parser(
         "keys",
         help="make API keys for the scoring service",
-        description="API keys are bearer tokens with a role (scorer or admin). The service "
-        "stores only their SHA-256 digest, in UPSHOT_API_KEYS or UPSHOT_API_KEYS_FILE.",
+        description="API keys are bearer tokens with a role (scorer, analyst or admin). The "
+        "service stores only their SHA-256 digest, in UPSHOT_API_KEYS or UPSHOT_API_KEYS_FILE.",
     )
     actions = parser.add_subparsers(title="actions", metavar="ACTION", required=True)
     new = actions.add_parser("new", help="print a fresh key and the entry to configure")
     new.add_argument("--name", required=True, help="who uses it, e.g. crm (kept in audit logs)")
-    new.add_argument("--role", required=True, choices=["scorer", "admin"])
+    new.add_argument("--role", required=True, choices=list(ROLES))
     new.set_defaults(handler=_new)
 
 

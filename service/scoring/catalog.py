@@ -23,9 +23,30 @@ from service.registry import LoadedBundle, ModelRegistry
 from service.scoring.estimates import ServableModel, servable
 from service.scoring.features import FeatureSchema
 
-__all__ = ["BoundCampaign", "Catalog", "bind_campaigns", "load_catalog", "readiness_problems"]
+__all__ = [
+    "BoundCampaign",
+    "Catalog",
+    "CatalogRefused",
+    "bind_campaigns",
+    "catalog_problems",
+    "load_catalog",
+    "readiness_problems",
+    "validated_catalog",
+]
 
 logger = logging.getLogger(__name__)
+
+
+class CatalogRefused(PolicyError):
+    """A campaign file that cannot serve every campaign; ``details`` lists the problems."""
+
+    def __init__(self, campaigns_file: Path, problems: list[str]) -> None:
+        more = f" (and {len(problems) - 1} more)" if len(problems) > 1 else ""
+        super().__init__(
+            f"The campaign file {str(campaigns_file)!r} was not applied: {problems[0]}{more}. "
+            "The previous campaigns keep serving; fix the file or the registry and reload."
+        )
+        self.details = {"problems": problems}
 
 
 @dataclass(frozen=True, eq=False)
@@ -162,11 +183,36 @@ def _bind(
     )
 
 
-def readiness_problems(catalog: Catalog, registry: ModelRegistry, log: DecisionLog) -> list[str]:
-    """Why the service should not take traffic (empty when ready).
+def validated_catalog(
+    registry: ModelRegistry,
+    campaigns_file: Path,
+    *,
+    compile: bool = True,
+    previous: Catalog | None = None,
+) -> Catalog:
+    """Load the campaign file for a reload, refusing it unless every campaign can serve.
 
-    Every served model version is verified again on disk, so a bundle that was removed
-    or altered after start-up makes the service unready before a restart would fail.
+    The check is :func:`catalog_problems`, the one ``/readyz`` runs, so a reload that
+    succeeds leaves the service ready and one that fails changes nothing.
+
+    Raises
+    ------
+    PolicyError
+        The file is invalid, or a campaign's model is missing or fails verification;
+        ``details["problems"]`` lists every problem.
+    """
+    catalog = load_catalog(registry, campaigns_file, compile=compile, previous=previous)
+    problems = catalog_problems(catalog, registry)
+    if problems:
+        raise CatalogRefused(campaigns_file, problems)
+    return catalog
+
+
+def catalog_problems(catalog: Catalog, registry: ModelRegistry) -> list[str]:
+    """Why a catalog cannot serve every campaign (empty when it can).
+
+    Every served model version is verified again on disk (hashes of every artifact), so a
+    bundle that was removed or altered since it was loaded counts as a problem.
     """
     problems = [f"campaign {cid!r}: {problem}" for cid, problem in catalog.problems.items()]
     if not catalog.campaigns:
@@ -176,6 +222,16 @@ def readiness_problems(catalog: Catalog, registry: ModelRegistry, log: DecisionL
             registry.verify(name, version)
         except (BundleError, NotFoundError) as err:
             problems.append(f"model {name}:{version} failed verification: {err}")
+    return problems
+
+
+def readiness_problems(catalog: Catalog, registry: ModelRegistry, log: DecisionLog) -> list[str]:
+    """Why the service should not take traffic (empty when ready).
+
+    The catalog's problems (:func:`catalog_problems`, which also verifies every served
+    model on disk) and a decision log that does not take writes.
+    """
+    problems = catalog_problems(catalog, registry)
     if not log.writable():
         problems.append(
             "the decision log is not writable; check the disk and the permissions of its file"

@@ -21,10 +21,12 @@ import pandas as pd
 from service.errors import DataError
 from service.uplift import FeatureSpec
 
-__all__ = ["FeatureSchema", "FeatureTable", "InvalidFeatures"]
+__all__ = ["FeatureSchema", "FeatureTable", "InvalidFeatures", "number_problem"]
 
 _MAX_LISTED = 20
 _NUMBER_TYPES = frozenset({int, float, type(None)})
+_SHOWN = 60
+_MAX_INT_CATEGORY = 2**63
 
 
 class InvalidFeatures(DataError):
@@ -178,8 +180,11 @@ class FeatureSchema:
         self, spec: FeatureSpec, values: Sequence[Any]
     ) -> tuple[npt.NDArray[np.float64], list[dict[str, Any]]]:
         if set(map(type, values)) <= _NUMBER_TYPES:
-            column = np.array(values, dtype=float)
-            if np.isfinite(column).sum() + _count_none(values) == len(values):
+            try:
+                column = np.array(values, dtype=float)
+            except OverflowError:  # a whole number beyond float range: listed below
+                column = np.empty(0)
+            if len(column) and np.isfinite(column).sum() + _count_none(values) == len(values):
                 return column, []
         problems = []
         for i, value in enumerate(values):
@@ -243,23 +248,67 @@ class FeatureSchema:
             )
 
 
+def number_problem(value: Any, *, missing: str = "null if missing") -> str | None:
+    """Why ``value`` is not a usable number, or None if it is: the one check of numbers
+    sent to the service (features, per-customer values).
+
+    A number is an ``int`` or ``float`` (not a boolean) that is finite as a 64-bit float;
+    a whole number beyond about 1.8e308 is refused here rather than overflowing later.
+    """
+    kind = type(value)
+    if kind is bool or kind not in (int, float):
+        return (
+            f"must be a number, got {_shown(value)} ({_json_type(value)}); send a number, "
+            f"or {missing}"
+        )
+    if kind is int:
+        try:
+            float(value)
+        except OverflowError:
+            return (
+                f"must be a finite number, got a whole number of {_digits(value)} digits, "
+                f"beyond the range of a 64-bit float (about 1.8e308); send a smaller number, "
+                f"or {missing}"
+            )
+        return None
+    if not math.isfinite(value):
+        return f"must be a finite number, got {value!r}; send {missing}"
+    return None
+
+
 def _problem(spec: FeatureSpec, value: Any) -> str | None:
     """Why ``value`` cannot be used for ``spec``, or None if it can."""
     if value is None:
         return None
     kind = type(value)
     if spec.kind == "numeric":
-        if kind is bool or kind not in (int, float):
-            return (
-                f"must be a number, got {value!r} ({_json_type(value)}); send a number, "
-                "or null if missing"
-            )
-        if kind is float and not math.isfinite(value):
-            return f"must be a finite number, got {value!r}; send null if missing"
-        return None
+        return number_problem(value)
+    if kind is int and not -_MAX_INT_CATEGORY <= value < _MAX_INT_CATEGORY:
+        return (
+            f"must be a category (text), got a whole number of {_digits(value)} digits; "
+            "send the category as text"
+        )
     if kind in (str, bool, int):
         return None
-    return f"must be text (a category), got {value!r} ({_json_type(value)}); send null if missing"
+    return (
+        f"must be text (a category), got {_shown(value)} ({_json_type(value)}); "
+        "send null if missing"
+    )
+
+
+def _shown(value: Any) -> str:
+    """``repr(value)``, cut to a readable length."""
+    if type(value) is int and abs(value) >= 10**_SHOWN:
+        return f"a whole number of {_digits(value)} digits"
+    text = repr(value)
+    return text if len(text) <= _SHOWN else text[: _SHOWN - 3] + "..."
+
+
+def _digits(value: int) -> str:
+    # str() of an int over 4,300 digits is refused by Python: estimate from the bits.
+    if value.bit_length() < 14_000:
+        return str(len(str(abs(value))))
+    return f"about {int(value.bit_length() * math.log10(2)) + 1:,}"
 
 
 def _json_type(value: Any) -> str:

@@ -4,10 +4,13 @@ from __future__ import annotations
 
 import asyncio
 import logging
+from typing import Annotated
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Path
 
 from service.api.deps import AdminKey, RegistryDep, StateDep
+from service.api.examples import DEMO_MODEL, PROMOTE
+from service.api.openapi import error_responses, request_examples
 from service.api.routes.campaigns import describe_campaigns
 from service.api.routing import OrjsonRoute
 from service.api.schemas import PromoteRequest, PromoteResult, ReloadResult
@@ -17,9 +20,18 @@ router = APIRouter(prefix="/v1/admin", tags=["admin"], route_class=OrjsonRoute)
 logger = logging.getLogger(__name__)
 
 
-@router.post("/models/{name}/promote", response_model=PromoteResult)
+@router.post(
+    "/models/{name}/promote",
+    response_model=PromoteResult,
+    responses=error_responses(401, 403, 404, 409, 413, 422),
+    openapi_extra=request_examples(demo=PROMOTE),
+)
 async def promote(
-    name: str, body: PromoteRequest, state: StateDep, registry: RegistryDep, key: AdminKey
+    name: Annotated[str, Path(examples=[DEMO_MODEL])],
+    body: PromoteRequest,
+    state: StateDep,
+    registry: RegistryDep,
+    key: AdminKey,
 ) -> PromoteResult:
     """Make a version the champion and rebind the campaigns that follow the champion."""
     previous = await asyncio.to_thread(registry.champion, name)
@@ -35,7 +47,9 @@ async def promote(
     return PromoteResult(name=name, champion=body.version, previous=previous, campaigns=following)
 
 
-@router.post("/campaigns/reload", response_model=ReloadResult)
+@router.post(
+    "/campaigns/reload", response_model=ReloadResult, responses=error_responses(401, 403, 422)
+)
 async def reload_campaigns(state: StateDep, key: AdminKey) -> ReloadResult:
     """Re-read the campaign file; on an error the previous campaigns keep serving."""
     catalog = await state.reload()

@@ -5,6 +5,7 @@ from __future__ import annotations
 from fastapi import APIRouter
 
 from service.api.deps import CatalogDep, ScorerKey
+from service.api.openapi import error_responses
 from service.api.routing import OrjsonRoute
 from service.api.schemas import CampaignInfo, CampaignList
 from service.scoring import Catalog
@@ -22,7 +23,7 @@ NOTICE = (
 )
 
 
-@router.get("", response_model=CampaignList)
+@router.get("", response_model=CampaignList, responses=error_responses(401, 403))
 async def list_campaigns(catalog: CatalogDep, _: ScorerKey) -> CampaignList:
     """Every campaign of the campaign file, its policy and the model version serving it."""
     return CampaignList(notice=NOTICE, campaigns=describe_campaigns(catalog))

@@ -8,8 +8,9 @@ from fastapi import APIRouter
 
 from service.api.deps import CatalogDep, LogDep, RegistryDep
 from service.api.errors import ApiError
+from service.api.openapi import error_responses
 from service.api.routing import OrjsonRoute
-from service.api.schemas import ErrorBody, Health, Readiness
+from service.api.schemas import Health, Readiness
 from service.scoring import readiness_problems
 
 router = APIRouter(tags=["health"], route_class=OrjsonRoute)
@@ -21,7 +22,7 @@ async def healthz() -> Health:
     return Health(status="ok")
 
 
-@router.get("/readyz", response_model=Readiness, responses={503: {"model": ErrorBody}})
+@router.get("/readyz", response_model=Readiness, responses=error_responses(503))
 async def readyz(catalog: CatalogDep, registry: RegistryDep, log: LogDep) -> Readiness:
     """Every campaign's model is loaded and verified on disk, and the log is writable."""
     problems = await asyncio.to_thread(readiness_problems, catalog, registry, log)

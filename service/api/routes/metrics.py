@@ -10,7 +10,16 @@ from service.api.deps import StateDep
 router = APIRouter(tags=["health"])
 
 
-@router.get("/metrics", response_class=Response)
+@router.get(
+    "/metrics",
+    response_class=Response,
+    responses={
+        200: {
+            "description": "Prometheus text exposition.",
+            "content": {CONTENT_TYPE_LATEST.split(";")[0]: {"schema": {"type": "string"}}},
+        }
+    },
+)
 async def metrics(state: StateDep) -> Response:
     """Requests, latency histograms, decisions by action, exploration share, errors."""
     return Response(state.metrics.render(), media_type=CONTENT_TYPE_LATEST)

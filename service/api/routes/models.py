@@ -8,6 +8,7 @@ from typing import Any
 from fastapi import APIRouter
 
 from service.api.deps import CatalogDep, RegistryDep, ScorerKey
+from service.api.openapi import error_responses
 from service.api.routing import OrjsonRoute
 from service.api.schemas import ModelInfo, ModelList
 from service.errors import BundleError, NotFoundError
@@ -17,7 +18,7 @@ from service.scoring import Catalog
 router = APIRouter(prefix="/v1/models", tags=["models"], route_class=OrjsonRoute)
 
 
-@router.get("", response_model=ModelList)
+@router.get("", response_model=ModelList, responses=error_responses(401, 403))
 async def list_models(catalog: CatalogDep, registry: RegistryDep, _: ScorerKey) -> ModelList:
     """Every registered model with its versions, champion, challenger and feature schema."""
     return await asyncio.to_thread(_describe, catalog, registry)

@@ -8,19 +8,21 @@ from fastapi import APIRouter
 
 from service.api.deps import LogDep, ScorerKey, StateDep
 from service.api.errors import ApiError
+from service.api.examples import OUTCOMES
 from service.api.loop_schemas import OutcomeReceiptBody, OutcomesRequest
+from service.api.openapi import error_responses, request_examples
 from service.api.routing import OrjsonRoute
-from service.api.schemas import ErrorBody
 from service.decisions.outcomes import OutcomeReceipt, OutcomeStore, parse_outcome
 
 router = APIRouter(prefix="/v1/outcomes", tags=["learning loop"], route_class=OrjsonRoute)
 
-ERRORS: dict[int | str, dict[str, object]] = {
-    status: {"model": ErrorBody} for status in (401, 403, 409, 413, 422)
-}
 
-
-@router.post("", response_model=OutcomeReceiptBody, responses=ERRORS)
+@router.post(
+    "",
+    response_model=OutcomeReceiptBody,
+    responses=error_responses(401, 403, 409, 413, 422),
+    openapi_extra=request_examples(demo=OUTCOMES),
+)
 async def post_outcomes(
     body: OutcomesRequest, log: LogDep, state: StateDep, _: ScorerKey
 ) -> OutcomeReceiptBody:

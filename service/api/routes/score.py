@@ -8,7 +8,9 @@ from fastapi import APIRouter
 
 from service.api.candidates import candidates, check_batch_size
 from service.api.deps import ScorerKey, StateDep
+from service.api.examples import BATCH_COLUMNS, BATCH_ROWS, DECISION, SCORE
 from service.api.metrics import Metrics
+from service.api.openapi import error_responses, request_examples, with_example
 from service.api.responses import OrjsonResponse
 from service.api.routing import ScoringRoute
 from service.api.schemas import (
@@ -16,7 +18,6 @@ from service.api.schemas import (
     BatchScoreRequest,
     Decision,
     DecisionColumns,
-    ErrorBody,
     ScoreRequest,
 )
 from service.decisions import DecisionRecord
@@ -30,14 +31,17 @@ from service.scoring import (
 
 router = APIRouter(prefix="/v1/score", tags=["scoring"], route_class=ScoringRoute)
 
-ERRORS: dict[int | str, dict[str, object]] = {
-    status: {"model": ErrorBody} for status in (401, 403, 404, 413, 422, 503)
-}
+ERRORS = error_responses(401, 403, 404, 413, 415, 422, 503)
 # Below this many customers, moving the work to a thread costs more than it frees.
 THREAD_ROWS = 2000
 
 
-@router.post("", response_model=Decision, responses=ERRORS)
+@router.post(
+    "",
+    response_model=Decision,
+    responses=with_example(ERRORS, DECISION),
+    openapi_extra=request_examples(demo=SCORE),
+)
 async def score(body: ScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResponse:
     """Decide whether and how to contact one customer; the decision is logged first."""
     bound = state.catalog.get(body.campaign)
@@ -48,7 +52,12 @@ async def score(body: ScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResp
     return OrjsonResponse(one.body)
 
 
-@router.post("/batch", response_model=BatchDecisions | DecisionColumns, responses=ERRORS)
+@router.post(
+    "/batch",
+    response_model=BatchDecisions | DecisionColumns,
+    responses=ERRORS,
+    openapi_extra=request_examples(rows=BATCH_ROWS, columns=BATCH_COLUMNS),
+)
 async def score_batch(body: BatchScoreRequest, state: StateDep, _: ScorerKey) -> OrjsonResponse:
     """Decide for many customers; column-form requests get column-form answers."""
     n = check_batch_size(body, state.settings.max_batch)
