@@ -14,6 +14,7 @@ from fastapi import FastAPI
 
 from service import __version__
 from service.api.auth import KeyRing
+from service.api.docs import install_docs
 from service.api.errors import install_error_handlers
 from service.api.limits import BodySizeLimit
 from service.api.metrics import Metrics, MetricsMiddleware
@@ -108,6 +109,8 @@ def create_app(
         description=_DESCRIPTION,
         lifespan=lifespan,
         default_response_class=OrjsonResponse,
+        docs_url=None,  # served from the package by install_docs (works offline)
+        redoc_url=None,
         # Prometheus metrics are ours (metrics.py); FastAPI's OpenTelemetry hooks would
         # only add per-request work.
         telemetry={"tracing": False, "metrics": False, "logs": False, "operation_spans": False},
@@ -119,6 +122,7 @@ def create_app(
     app.add_middleware(MetricsMiddleware, metrics=metrics_)
     for module in (health, score, rank, models, campaigns, admin, metrics, outcomes, lift):
         app.include_router(module.router)
+    install_docs(app, title=app.title)
     return app
 
 
