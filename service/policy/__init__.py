@@ -14,7 +14,7 @@ from service.policy.decide import REASONS, DecisionBatch, decide
 from service.policy.draws import Draws, uniform_draw, uniform_draws, uniform_hash
 from service.policy.exploration import choice_probabilities, explore_pick, final_probabilities
 from service.policy.loader import load_campaigns, parse_campaigns
-from service.policy.rank import EXCLUSION_REASONS, RankResult, rank
+from service.policy.rank import EXCLUSION_REASONS, RankResult, budget_price, rank
 from service.policy.single import Decision, decide_one, decision_row
 from service.policy.value import (
     do_not_contact_flags,
@@ -33,6 +33,7 @@ __all__ = [
     "DecisionBatch",
     "Draws",
     "RankResult",
+    "budget_price",
     "choice_probabilities",
     "decide",
     "decide_one",
