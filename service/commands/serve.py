@@ -85,12 +85,14 @@ def _run(settings: Any, *, access_log: bool, banner: str = "") -> int:
 
     from service.api.app import create_app
     from service.api.logs import configure_logging
+    from service.policy import load_campaigns
 
+    # A broken campaign file is one clear line (upshot: error: ...), not a traceback in
+    # the JSON log of a server that then refuses to start.
+    load_campaigns(settings.campaigns_file)
     configure_logging(settings.log_level)
     app = create_app(settings)
-    if banner:
-        print(banner, flush=True)
-    uvicorn.run(
+    config = uvicorn.Config(
         app,
         host=settings.host,
         port=settings.port,
@@ -99,7 +101,29 @@ def _run(settings: Any, *, access_log: bool, banner: str = "") -> int:
         log_level=settings.log_level,
         timeout_keep_alive=30,
     )
+    _AnnouncingServer(config, banner).run()
     return 0
+
+
+class _AnnouncingServer:
+    """A uvicorn server that prints ``banner`` once it listens (not before start-up,
+    which loads and verifies every model and can take a while)."""
+
+    def __init__(self, config: Any, banner: str) -> None:
+        import uvicorn
+
+        banner_text = banner
+
+        class _Server(uvicorn.Server):
+            async def startup(self, sockets: Any = None) -> None:
+                await super().startup(sockets=sockets)
+                if self.started and banner_text:
+                    print(banner_text, flush=True)
+
+        self._server = _Server(config)
+
+    def run(self) -> None:
+        self._server.run()
 
 
 def _demo(args: argparse.Namespace) -> int:

@@ -165,6 +165,13 @@ def rank_many(
     _refuse_duplicates(ids)
     if capacity is None and budget is None:
         capacity = bound.campaign.capacity
+        if capacity is None:
+            raise DataError(
+                f"No limit for the list: the request gives neither capacity nor budget and "
+                f"campaign {bound.campaign.id!r} sets no default capacity, so every candidate "
+                "would be listed. Send capacity and/or budget, or set capacity in the "
+                "campaign file."
+            )
     estimates, value_array = _estimate(bound, ids, table, values)
     context = _rank_context(ids, capacity, budget)
     return _decide(bound, list(ids), _feature_rows(table), value_array, estimates,

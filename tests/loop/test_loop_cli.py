@@ -165,3 +165,16 @@ def test_overlap_warning_suggests_a_bound_that_excludes_training() -> None:
     assert after(last) == "2026-03-02T09:00:00.000001Z"
     bound = utc_text(after(last), "since")
     assert bound is not None and bound > last  # strictly after: --since is inclusive
+
+
+def test_lift_refuses_without_a_random_control(world, tmp_path, capsys) -> None:
+    from loop_world import write_campaigns
+
+    campaigns = write_campaigns(tmp_path / "fixed.toml", exploration=0.0, holdout=0.0)
+    path = tmp_path / "fixed.sqlite3"
+    with DecisionLog.open(path) as log:
+        run_day_in_process(bind(world.models_dir, campaigns), log, OutcomeStore(path), 3, 300)
+    argv = ["lift", CAMPAIGN, "--log", str(path), "--campaigns", str(campaigns)]
+    assert run_cli(argv) == 1
+    err = capsys.readouterr().err
+    assert "no randomized share" in err and "holdout" in err
