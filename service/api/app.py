@@ -79,7 +79,14 @@ def create_app(
     # Drift gauges on /metrics, computed off the event loop from the log's last decisions.
     metrics_.registry.register(
         DriftCollector(
-            lambda: (state.log.path, {c: b.bundle for c, b in state.catalog.bound.items()})
+            lambda: (
+                state.log.path,
+                {
+                    c: b.bundle
+                    for c, b in state.catalog.bound.items()
+                    if not b.campaign.is_pilot  # a pilot has no training reference
+                },
+            )
         )
     )
 
