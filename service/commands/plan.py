@@ -193,10 +193,10 @@ def run(args: argparse.Namespace) -> int:
                 f"{head}, about {r['decisions']:,.0f} logged decisions "
                 f"(each counts {r['ess_per_decision']:.3g}){days}"
             )
-    print(
-        "  (normal approximations; the replay figure assumes the challenger departs from "
-        "the logged policy where it matters, so only the randomized share informs it)"
-    )
+        print(
+            "  (the replay figure assumes the challenger departs from the logged policy "
+            "where it matters, so only the randomized share informs it)"
+        )
     return 0
 
 

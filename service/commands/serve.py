@@ -28,7 +28,8 @@ _DEMO = """\
 The demo in one command: if model "larkspur" has no champion yet, simulate the fictional
 Larkspur Tea Club campaign (20,000 customers), train a model on it and promote it; then
 serve campaigns/larkspur.toml on 127.0.0.1:8000 with the decision log in
-var/decisions.sqlite3. The data is invented, for the demo only.
+var/decisions.sqlite3. With --pilot, skip the model: the randomized pilot campaign
+larkspur-pilot serves at once. The data is invented, for the demo only.
 """
 
 
@@ -46,7 +47,13 @@ def register(subparsers: Any) -> None:
         "demo", help="build the demo model if needed and serve it", description=_DEMO
     )
     _server_options(demo)
-    demo.add_argument("--port", type=int, default=8000, help="port (default 8000)")
+    demo.add_argument("--port", type=int, help="port (env UPSHOT_PORT; default 8000)")
+    demo.add_argument(
+        "--pilot",
+        action="store_true",
+        help="start without a model: the pilot campaign serves, larkspur-renewal waits for "
+        "a champion of larkspur (the README's first section)",
+    )
     demo.set_defaults(handler=_demo)
 
 
@@ -141,7 +148,8 @@ def _demo(args: argparse.Namespace) -> int:
         "host": "127.0.0.1",
     }
     settings = load_settings(**overrides)
-    ensure_demo_model(settings.models_dir)
+    if not args.pilot:
+        ensure_demo_model(settings.models_dir)
     return _run(settings, access_log=args.access_log, banner=_curl_examples(settings.port))
 
 
