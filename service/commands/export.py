@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from service.commands._loop import add_campaigns, add_log, add_window, print_warnings
+from service.commands._loop import add_campaigns, add_log, add_window, launcher, print_warnings
 
 __all__ = ["register"]
 
@@ -57,8 +57,8 @@ def run(args: argparse.Namespace) -> int:
     t = p["training"]
     print("train the next version with:")
     print(
-        f"  upshot train {result.path} --treatment {t['treatment']} --outcome {t['outcome']} "
-        f"--control {t['control']} --weight {t['sample_weight']} "
+        f"  {launcher()} train {result.path} --treatment {t['treatment']} "
+        f"--outcome {t['outcome']} --control {t['control']} --weight {t['sample_weight']} "
         f"--features {','.join(t['features'])}{_valuation(value, costs)} --name MODEL"
     )
     if campaign is None:

@@ -12,6 +12,7 @@ from service.commands._loop import (
     add_window,
     fmt,
     interval,
+    launcher,
     load_campaign,
     print_json,
     print_warnings,
@@ -110,7 +111,7 @@ def run(args: argparse.Namespace) -> int:
         )
         verdict = "would promote" if gate.passed else "would refuse"
         print(
-            f"`upshot models promote {name} {version} --require-replay` (DR, margin 0) "
+            f"`{launcher()} models promote {name} {version} --require-replay` (DR, margin 0) "
             f"{verdict}: promotion is judged against the champion, not the logged policy."
         )
     elif champion is None:

@@ -150,7 +150,9 @@ def _demo(args: argparse.Namespace) -> int:
     settings = load_settings(**overrides)
     if not args.pilot:
         ensure_demo_model(settings.models_dir)
-    return _run(settings, access_log=args.access_log, banner=_curl_examples(settings.port))
+    campaign = "larkspur-pilot" if args.pilot else "larkspur-renewal"
+    banner = _curl_examples(settings.port, campaign)
+    return _run(settings, access_log=args.access_log, banner=banner)
 
 
 def ensure_demo_model(models_dir: Path, *, rows: int = DEMO_ROWS) -> str:
@@ -191,16 +193,16 @@ def ensure_demo_model(models_dir: Path, *, rows: int = DEMO_ROWS) -> str:
     return result.version
 
 
-def _curl_examples(port: int) -> str:
+def _curl_examples(port: int, campaign: str = "larkspur-renewal") -> str:
     base = f"http://127.0.0.1:{port}"
     customer = (
-        '{"campaign": "larkspur-renewal", "customer": {"id": "LTC-000123", "features": '
+        f'{{"campaign": "{campaign}", "customer": {{"id": "LTC-000123", "features": '
         '{"tenure_months": 14, "monthly_spend": 18.5, "cups_logged_last_30d": 9, '
         '"support_tickets_90d": 0, "plan": "classic", "region": "north", '
         '"signup_channel": "web"}}}'
     )
     ranked = (
-        '{"campaign": "larkspur-renewal", "capacity": 2, "columns": {"id": ["LTC-000001", '
+        f'{{"campaign": "{campaign}", "capacity": 2, "columns": {{"id": ["LTC-000001", '
         '"LTC-000002", "LTC-000003"], "tenure_months": [3, 40, 12], "monthly_spend": [12.0, '
         '36.5, null], "cups_logged_last_30d": [2, 30, 11], "support_tickets_90d": [0, 4, 1], '
         '"plan": ["sampler", "connoisseur", "classic"], "region": ["south", "west", "east"], '
