@@ -150,6 +150,9 @@ def test_readme_runs_verbatim(tmp_path: Path) -> None:
                     os.killpg(server.pid, signal.SIGKILL)
                     server.wait()
     assert servers, "the README starts no service, so its curl examples were not checked"
+    # The demo prints its curl examples once the server listens, not before start-up.
+    log = (tmp_path / "server-0.log").read_text(encoding="utf-8", errors="replace")
+    assert 0 <= log.find("Uvicorn running on") < log.find("curl -s http://127.0.0.1:"), log[:2000]
     # What the walk produced: a pilot log, a first model from it, and the loop's versions.
     assert (clone / "models" / "larkspur" / "v0001").is_dir()
     assert (clone / "pilot.csv.source.json").is_file()
