@@ -156,8 +156,21 @@ def campaign_lift(
         coverage=coverage,
         costs=costs,
         lift=lift,
-        warnings=_coverage_warnings(logged, coverage) + list(lift.warnings),
+        warnings=_coverage_warnings(logged, coverage) + _pilot_notes(campaign, lift.warnings),
     )
+
+
+def _pilot_notes(campaign: Campaign, warnings: list[str]) -> list[str]:
+    # A pilot has no holdout by design: every action is a random draw, and its lift is
+    # the policy-vs-no-one comparison; the holdout advice does not apply to it.
+    if not campaign.is_pilot:
+        return list(warnings)
+    kept = [w for w in warnings if not w.startswith("The targeted comparison")]
+    return [
+        "randomized pilot: every action was drawn at the pilot shares, so the lift is the "
+        "comparison with contacting no one (there is no holdout among chosen contacts)",
+        *kept,
+    ]
 
 
 def _costs(logged: LoggedDecisions, campaign: Campaign) -> dict[str, float]:

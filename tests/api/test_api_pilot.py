@@ -78,3 +78,34 @@ async def test_pilot_serves_logs_and_exports_a_first_model(
     # The first model recovers the average uplift of each arm: 0.05 is about three standard
     # errors of a difference of two rates from 1,200 and 1,600 customers (p near 0.5).
     assert np.abs(tau.mean(axis=0) - truth.mean(axis=0)).max() < 0.05
+
+
+def test_pilot_lift_and_drift_say_what_a_pilot_is(
+    make_settings, campaigns_file: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    from service.cli import main
+    from service.decisions import DecisionLog
+    from service.policy import load_campaigns
+    from service.scoring import bind_campaigns, decide_many
+
+    campaigns_file.write_text(CAMPAIGN_TOML + PILOT_TOML, encoding="utf-8")
+    settings = make_settings()
+    sim = simulate("larkspur", n=600, random_state=8)
+    ids = [f"Q-{i}" for i in range(600)]
+    bound = bind_campaigns(
+        ModelRegistry(settings.models_dir), load_campaigns(campaigns_file), compile=False
+    ).get("pilot")
+    decided = decide_many(bound, ids, bound.schema.table_from_columns(
+        {k: v for k, v in columns_of(ids, sim.X).items() if k != "id"}, 600), None)  # fmt: skip
+    with DecisionLog.open(settings.decision_log) as log:
+        log.append_sync(decided.records)
+    y = sim.expected_outcomes()[np.arange(600), decided.batch.action] > 0.5
+    OutcomeStore(Path(settings.decision_log)).record(
+        [Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)]
+    )
+    common = ["--log", str(settings.decision_log), "--campaigns", str(campaigns_file)]
+    assert main(["lift", "pilot", *common]) == 0
+    assert "randomized pilot" in capsys.readouterr().out
+    drift = ["drift", "--campaign", "pilot", *common, "--models-dir", str(settings.models_dir)]
+    assert main(drift) == 1
+    assert "randomized pilot with no model" in capsys.readouterr().err
