@@ -47,6 +47,20 @@ async def test_pilot_serves_logs_and_exports_a_first_model(
         assert one.status_code == 200, one.text
         assert one.json()["action"] == "none" and one.json()["propensity"] == 1.0
         assert one.json()["reasons"] == ["opted_out"]
+        body = {"campaign": "pilot", "customer": {"id": "P-one", "features": {
+            "tenure_months": 3, "plan": "classic", "gift": True, "spend": None}}}  # fmt: skip
+        scored = await client.post("/v1/score", json=body)
+        assert scored.status_code == 200, scored.text
+        first = scored.json()
+        again = (await client.post("/v1/score", json=body)).json()
+        assert first["reasons"] == ["pilot"]
+        assert first["model"] == {"name": "pilot", "version": "none"}
+        shares = {"none": 0.4, "email": 0.3, "call": 0.3}
+        assert first["propensity"] == shares[first["action"]]
+        assert again["decision_id"] == first["decision_id"] and again["action"] == first["action"]
+        bad = {"campaign": "pilot", "customer": {"id": "P-bad", "features": {"x": [1, 2]}}}
+        refused = await client.post("/v1/score", json=bad)
+        assert refused.status_code == 422 and "features.x" in refused.json()["error"]["message"]
         batch = await client.post(
             "/v1/score/batch", json={"campaign": "pilot", "columns": columns_of(ids, sim.X)}
         )
