@@ -14,6 +14,7 @@ first ``scripts/upshot`` of a fresh clone would create).
 
 from __future__ import annotations
 
+import hashlib
 import os
 import re
 import shutil
@@ -73,7 +74,15 @@ def _fresh_copy(target: Path) -> None:
         if source.is_file():
             (target / name).parent.mkdir(parents=True, exist_ok=True)
             shutil.copy2(source, target / name)
-    (target / ".venv").symlink_to(Path(sys.prefix))
+    # The environment a first `scripts/upshot` would have created: this one, seen through
+    # symlinks, with the install stamp that scripts/_venv.sh checks, so nothing reinstalls.
+    venv = target / ".venv"
+    venv.mkdir()
+    for entry in Path(sys.prefix).iterdir():
+        if not entry.name.startswith(".installed-"):
+            (venv / entry.name).symlink_to(entry)
+    digest = hashlib.sha256((target / "pyproject.toml").read_bytes()).hexdigest()[:16]
+    (venv / f".installed-{digest}").touch()
 
 
 def _wait_for(url: str, server: subprocess.Popen[bytes], log: Path) -> None:
