@@ -30,6 +30,8 @@ COMMANDS: tuple[str, ...] = (
     "replay",
     "export",
     "drift",
+    "plan",
+    "demo_data",
 )
 """Modules of ``service.commands`` that provide sub-commands, in help order."""
 

@@ -14,6 +14,7 @@ from fastapi import FastAPI
 
 from service import __version__
 from service.api.auth import KeyRing
+from service.api.docs import install_docs
 from service.api.errors import install_error_handlers
 from service.api.limits import RequestLimits
 from service.api.metrics import Metrics, MetricsMiddleware
@@ -78,7 +79,14 @@ def create_app(
     # Drift gauges on /metrics, computed off the event loop from the log's last decisions.
     metrics_.registry.register(
         DriftCollector(
-            lambda: (state.log.path, {c: b.bundle for c, b in state.catalog.bound.items()})
+            lambda: (
+                state.log.path,
+                {
+                    c: b.bundle
+                    for c, b in state.catalog.bound.items()
+                    if not b.campaign.is_pilot  # a pilot has no training reference
+                },
+            )
         )
     )
 
@@ -108,6 +116,8 @@ def create_app(
         description=_DESCRIPTION,
         lifespan=lifespan,
         default_response_class=OrjsonResponse,
+        docs_url=None,  # served from the package by install_docs (works offline)
+        redoc_url=None,
         # Prometheus metrics are ours (metrics.py); FastAPI's OpenTelemetry hooks would
         # only add per-request work.
         telemetry={"tracing": False, "metrics": False, "logs": False, "operation_spans": False},
@@ -125,6 +135,7 @@ def create_app(
     )
     for module in (health, score, rank, models, campaigns, admin, metrics, outcomes, lift):
         app.include_router(module.router)
+    install_docs(app, title=app.title)
     return app
 
 

@@ -268,7 +268,7 @@ class CampaignInfo(BaseModel):
     """A campaign policy as loaded, and the model serving it."""
 
     name: str
-    model: str
+    model: str | None = Field(description="Registry name; null for a randomized pilot.")
     model_version: str | None = Field(description="Serving version; null when not loaded.")
     pinned: bool
     policy_hash: str

@@ -84,15 +84,21 @@ def print_metrics(manifest: dict[str, Any]) -> None:
     """Headline cross-validated metrics, two lines per arm."""
     control = manifest["control"]
     for arm, m in manifest["metrics"]["arms"].items():
-        tops = "; ".join(
-            f"top {t['fraction']:.0%} {_num(t['estimate'])} [{_num(t['low'])}, {_num(t['high'])}]"
-            for t in m["uplift_at_top"]
-        )
+        tops = "; ".join(_top(t) for t in m["uplift_at_top"])
         print(
             f"  {arm} vs {control}: Qini {_num(m['qini_normalized'])} (normalised), "
             f"{_num(m['qini'])} (raw); AUUC {_num(m['auuc'])}"
         )
         print(f"      observed uplift, 95% CI: {tops}")
+
+
+def _top(t: dict[str, Any]) -> str:
+    low, high = t.get("low"), t.get("high")
+    if low is None or high is None or not high > low:
+        # A zero-width interval comes from a handful of rows with identical outcomes; it
+        # says nothing, so it is not printed as if it did.
+        return f"top {t['fraction']:.0%} n/a (too few rows or no variation)"
+    return f"top {t['fraction']:.0%} {_num(t['estimate'])} [{_num(low)}, {_num(high)}]"
 
 
 def resolve_ref(registry: Any, ref: str) -> tuple[str, str]:

@@ -17,6 +17,7 @@ __all__ = [
     "add_window",
     "fmt",
     "interval",
+    "launcher",
     "load_campaign",
     "print_json",
     "print_warnings",
@@ -52,6 +53,12 @@ def add_window(parser: ArgumentAdder) -> None:
     """``--since`` and ``--until`` (ISO 8601; a time without offset is UTC)."""
     parser.add_argument("--since", help="decisions from this time on (ISO 8601, e.g. 2026-03-01)")
     parser.add_argument("--until", help="decisions before this time (ISO 8601)")
+
+
+def launcher() -> str:
+    """How the user starts upshot, for printed follow-up commands (``scripts/upshot`` sets
+    ``UPSHOT_LAUNCHER``; otherwise ``upshot``)."""
+    return os.environ.get("UPSHOT_LAUNCHER", "upshot")
 
 
 def load_campaign(path: Path, campaign_id: str) -> Any:

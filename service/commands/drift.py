@@ -7,6 +7,7 @@ from typing import Any
 
 from service.commands._common import add_models_dir, resolve_ref
 from service.commands._loop import add_campaigns, add_log, add_window, load_campaign, print_json
+from service.errors import DataError
 
 __all__ = ["register"]
 
@@ -50,6 +51,12 @@ def run(args: argparse.Namespace) -> int:
     campaign = load_campaign(args.campaigns, args.campaign)
     if args.model:
         name, version = resolve_ref(registry, args.model)
+    elif campaign.model is None:
+        raise DataError(
+            f"Campaign {args.campaign!r} is a randomized pilot with no model, so there is no "
+            "training reference to compare with; pass --model NAME[:VERSION] to compare its "
+            "decisions with that model's training data."
+        )
     else:
         name, version = campaign.model, registry.resolve(campaign.model, campaign.model_version)
     logged = read_logged(

@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from service.commands._loop import add_log, add_window
+from service.commands._loop import add_campaigns, add_log, add_window, launcher, print_warnings
 
 __all__ = ["register"]
 
@@ -31,15 +31,22 @@ def register(subparsers: Any) -> None:
     )
     add_window(parser)
     add_log(parser)
+    add_campaigns(parser)
     parser.set_defaults(handler=run)
 
 
 def run(args: argparse.Namespace) -> int:
     """Export and print how to train on the table."""
     from service.loop import export_training_table, read_logged
+    from service.policy import load_campaigns
 
+    # The campaign file only adds value and costs to the printed command; not required.
+    campaigns = load_campaigns(args.campaigns) if args.campaigns.is_file() else {}
+    campaign = campaigns.get(args.campaign)
     logged = read_logged(args.log, args.campaign, since=args.since, until=args.until)
-    result = export_training_table(logged, args.out)
+    value = None if campaign is None else campaign.value
+    costs = None if campaign is None else {arm.name: arm.cost for arm in campaign.arms}
+    result = export_training_table(logged, args.out, value=value, costs=costs)
     p = result.provenance
     print(
         f"wrote {result.rows} decisions of {args.campaign} ({p['first_decision_at']} .. "
@@ -50,8 +57,21 @@ def run(args: argparse.Namespace) -> int:
     t = p["training"]
     print("train the next version with:")
     print(
-        f"  upshot train {result.path} --treatment {t['treatment']} --outcome {t['outcome']} "
-        f"--control {t['control']} --weight {t['sample_weight']} "
-        f"--features {','.join(t['features'])} --name MODEL"
+        f"  {launcher()} train {result.path} --treatment {t['treatment']} "
+        f"--outcome {t['outcome']} --control {t['control']} --weight {t['sample_weight']} "
+        f"--features {','.join(t['features'])}{_valuation(value, costs)} --name MODEL"
     )
+    if campaign is None:
+        print(
+            f"(campaign {args.campaign!r} is not in {args.campaigns}: add --value and --cost "
+            "so the report is valued like the campaign)"
+        )
+    print_warnings(result.warnings)
     return 0
+
+
+def _valuation(value: float | None, costs: dict[str, float] | None) -> str:
+    if value is None or costs is None:
+        return ""
+    cost = ",".join(f"{arm}={cost:g}" for arm, cost in costs.items())
+    return f" --value {value:g} --cost {cost}"

@@ -12,6 +12,7 @@ from service.commands._loop import (
     add_window,
     fmt,
     interval,
+    launcher,
     load_campaign,
     print_json,
     print_warnings,
@@ -56,7 +57,7 @@ def register(subparsers: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Replay and print the three estimates."""
-    from service.loop import read_logged, replay
+    from service.loop import read_logged, replay, replay_gate
     from service.registry import ModelRegistry
 
     registry = ModelRegistry(args.models_dir)
@@ -70,8 +71,17 @@ def run(args: argparse.Namespace) -> int:
         confidence=args.confidence,
         reward_model=args.reward_model,
     )
+    champion = registry.champion(name)
+    gate = None
+    if champion is not None and champion != version:
+        gate = replay_gate(
+            logged, campaign, registry.load(name, version), registry.load(name, champion),
+            confidence=args.confidence,
+        )  # fmt: skip
     if args.json:
-        print_json(result.to_dict())
+        body = result.to_dict()
+        body["against_champion"] = None if gate is None else _versus(gate)
+        print_json(body)
         return 0
     level = f"{args.confidence:.0%}"
     print(
@@ -81,12 +91,40 @@ def run(args: argparse.Namespace) -> int:
     print(f"net value per decision ({level} intervals):")
     for e in result.net_value.estimates():
         print(f"  {e.method.upper():<6} {interval(e)}")
-    print(f"  logged policy as run: {interval(result.logged)}")
+    print(
+        f"  logged policy as run (observed, exploration and holdout included): "
+        f"{interval(result.logged)}"
+    )
     print(
         f"effective sample size {fmt(result.net_value.ess, 5)} of {result.n}; the candidate "
         f"takes the logged action in {result.agreement:.1%} of decisions"
     )
     mix = ", ".join(f"{k} {v:.1%}" for k, v in result.actions.items())
     print(f"candidate's actions: {mix}")
+    if gate is not None:
+        champ = gate.champion
+        assert champ is not None
+        d = gate.difference["dr"]
+        print(
+            f"against the champion {name}:{champion} (the same decisions, the same policy): "
+            f"champion DR {interval(champ.net_value.dr)}; difference DR {interval(d)}"
+        )
+        verdict = "would promote" if gate.passed else "would refuse"
+        print(
+            f"`{launcher()} models promote {name} {version} --require-replay` (DR, margin 0) "
+            f"{verdict}: promotion is judged against the champion, not the logged policy."
+        )
+    elif champion is None:
+        print(f"model {name} has no champion yet; promotion needs no replay check")
     print_warnings(result.warnings)
     return 0
+
+
+def _versus(gate: Any) -> dict[str, Any]:
+    champion = gate.champion
+    return {
+        "champion": {"name": champion.model, "version": champion.version},
+        "champion_net_value_per_decision": champion.net_value.to_dict(),
+        "difference": {k: v.to_dict() for k, v in gate.difference.items()},
+        "passes_promotion_check": gate.passed,
+    }

@@ -28,7 +28,8 @@ _DEMO = """\
 The demo in one command: if model "larkspur" has no champion yet, simulate the fictional
 Larkspur Tea Club campaign (20,000 customers), train a model on it and promote it; then
 serve campaigns/larkspur.toml on 127.0.0.1:8000 with the decision log in
-var/decisions.sqlite3. The data is invented, for the demo only.
+var/decisions.sqlite3. With --pilot, skip the model: the randomized pilot campaign
+larkspur-pilot serves at once. The data is invented, for the demo only.
 """
 
 
@@ -46,7 +47,13 @@ def register(subparsers: Any) -> None:
         "demo", help="build the demo model if needed and serve it", description=_DEMO
     )
     _server_options(demo)
-    demo.add_argument("--port", type=int, default=8000, help="port (default 8000)")
+    demo.add_argument("--port", type=int, help="port (env UPSHOT_PORT; default 8000)")
+    demo.add_argument(
+        "--pilot",
+        action="store_true",
+        help="start without a model: the pilot campaign serves, larkspur-renewal waits for "
+        "a champion of larkspur (the README's first section)",
+    )
     demo.set_defaults(handler=_demo)
 
 
@@ -85,12 +92,14 @@ def _run(settings: Any, *, access_log: bool, banner: str = "") -> int:
 
     from service.api.app import create_app
     from service.api.logs import configure_logging
+    from service.policy import load_campaigns
 
+    # A broken campaign file is one clear line (upshot: error: ...), not a traceback in
+    # the JSON log of a server that then refuses to start.
+    load_campaigns(settings.campaigns_file)
     configure_logging(settings.log_level)
     app = create_app(settings)
-    if banner:
-        print(banner, flush=True)
-    uvicorn.run(
+    config = uvicorn.Config(
         app,
         host=settings.host,
         port=settings.port,
@@ -99,7 +108,29 @@ def _run(settings: Any, *, access_log: bool, banner: str = "") -> int:
         log_level=settings.log_level,
         timeout_keep_alive=30,
     )
+    _AnnouncingServer(config, banner).run()
     return 0
+
+
+class _AnnouncingServer:
+    """A uvicorn server that prints ``banner`` once it listens (not before start-up,
+    which loads and verifies every model and can take a while)."""
+
+    def __init__(self, config: Any, banner: str) -> None:
+        import uvicorn
+
+        banner_text = banner
+
+        class _Server(uvicorn.Server):
+            async def startup(self, sockets: Any = None) -> None:
+                await super().startup(sockets=sockets)
+                if self.started and banner_text:
+                    print(banner_text, flush=True)
+
+        self._server = _Server(config)
+
+    def run(self) -> None:
+        self._server.run()
 
 
 def _demo(args: argparse.Namespace) -> int:
@@ -117,8 +148,11 @@ def _demo(args: argparse.Namespace) -> int:
         "host": "127.0.0.1",
     }
     settings = load_settings(**overrides)
-    ensure_demo_model(settings.models_dir)
-    return _run(settings, access_log=args.access_log, banner=_curl_examples(settings.port))
+    if not args.pilot:
+        ensure_demo_model(settings.models_dir)
+    campaign = "larkspur-pilot" if args.pilot else "larkspur-renewal"
+    banner = _curl_examples(settings.port, campaign)
+    return _run(settings, access_log=args.access_log, banner=banner)
 
 
 def ensure_demo_model(models_dir: Path, *, rows: int = DEMO_ROWS) -> str:
@@ -159,16 +193,16 @@ def ensure_demo_model(models_dir: Path, *, rows: int = DEMO_ROWS) -> str:
     return result.version
 
 
-def _curl_examples(port: int) -> str:
+def _curl_examples(port: int, campaign: str = "larkspur-renewal") -> str:
     base = f"http://127.0.0.1:{port}"
     customer = (
-        '{"campaign": "larkspur-renewal", "customer": {"id": "LTC-000123", "features": '
+        f'{{"campaign": "{campaign}", "customer": {{"id": "LTC-000123", "features": '
         '{"tenure_months": 14, "monthly_spend": 18.5, "cups_logged_last_30d": 9, '
         '"support_tickets_90d": 0, "plan": "classic", "region": "north", '
         '"signup_channel": "web"}}}'
     )
     ranked = (
-        '{"campaign": "larkspur-renewal", "capacity": 2, "columns": {"id": ["LTC-000001", '
+        f'{{"campaign": "{campaign}", "capacity": 2, "columns": {{"id": ["LTC-000001", '
         '"LTC-000002", "LTC-000003"], "tenure_months": [3, 40, 12], "monthly_spend": [12.0, '
         '36.5, null], "cups_logged_last_30d": [2, 30, 11], "support_tickets_90d": [0, 4, 1], '
         '"plan": ["sampler", "connoisseur", "classic"], "region": ["south", "west", "east"], '

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import hashlib
 import json
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -62,6 +62,25 @@ class ExportResult:
     rows: int
     without_outcome: int
     provenance: dict[str, Any]
+    warnings: list[str] = field(default_factory=list)
+
+
+FEW_ROWS = 200
+"""An action with fewer exported rows than this gets a warning (common practice, no
+source: below a few hundred rows per group a model of that arm is mostly noise)."""
+
+
+def _few_rows_warnings(frame: pd.DataFrame) -> list[str]:
+    notes = []
+    for label, rows in frame.groupby("treatment", sort=True)["ipw"]:
+        if len(rows) < FEW_ROWS:
+            notes.append(
+                f"action {label!r} has only {len(rows)} row(s) (inverse-propensity weights up "
+                f"to {rows.max():.1f}); a model of it will be noisy and its intervals "
+                f"unreliable. Collect more decisions (or a larger pilot share) before "
+                f"trusting it; aim for at least {FEW_ROWS} rows per action."
+            )
+    return notes
 
 
 def sidecar_path(table: Path | str) -> Path:
@@ -103,8 +122,17 @@ def _frame(done: LoggedDecisions) -> tuple[pd.DataFrame, list[str]]:
     return pd.concat([front, features, back], axis=1), [str(c) for c in features.columns]
 
 
-def export_training_table(logged: LoggedDecisions, path: Path | str) -> ExportResult:
+def export_training_table(
+    logged: LoggedDecisions,
+    path: Path | str,
+    *,
+    value: float | None = None,
+    costs: dict[str, float] | None = None,
+) -> ExportResult:
     """Write the decisions of ``logged`` that have an outcome as a CSV or Parquet table.
+
+    ``value`` and ``costs`` (the campaign's, when known) are recorded with the training
+    columns so the next version's report is valued like the campaign.
 
     Raises
     ------
@@ -149,11 +177,14 @@ def export_training_table(logged: LoggedDecisions, path: Path | str) -> ExportRe
             "control": "none",
             "sample_weight": "ipw",
             "features": features,
+            "value": value,
+            "cost": costs,
         },
     }
     sidecar = sidecar_path(path)
     sidecar.write_text(json.dumps(provenance, indent=2, sort_keys=True), encoding="utf-8")
-    return ExportResult(path, sidecar, len(done), len(logged) - len(done), provenance)
+    notes = _few_rows_warnings(frame)
+    return ExportResult(path, sidecar, len(done), len(logged) - len(done), provenance, notes)
 
 
 def read_provenance(table: Path | str) -> dict[str, Any] | None:

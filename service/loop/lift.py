@@ -123,6 +123,14 @@ def campaign_lift(
             "this window; post outcomes (POST /v1/outcomes or `upshot outcomes import`), "
             "for contacted and non-contacted customers alike, then ask again."
         )
+    if np.all(done.action_probs.max(axis=1) >= 1.0 - 1e-12):
+        raise DataError(
+            f"Campaign {logged.campaign!r} has no randomized share in this window: every "
+            "decision's action was certain (holdout and exploration were 0 when they were "
+            "made), so there is no random control to measure a lift or an incremental profit "
+            "against. Set holdout (e.g. 0.10) and/or exploration (e.g. 0.05) in the campaign "
+            "file, or run a pilot, and measure on the decisions made after that."
+        )
     reward_model = np.column_stack([done.mu0, done.mu0[:, None] + done.tau])
     lift = realized_lift(
         done.outcome,
@@ -148,8 +156,21 @@ def campaign_lift(
         coverage=coverage,
         costs=costs,
         lift=lift,
-        warnings=_coverage_warnings(logged, coverage) + list(lift.warnings),
+        warnings=_coverage_warnings(logged, coverage) + _pilot_notes(campaign, lift.warnings),
     )
+
+
+def _pilot_notes(campaign: Campaign, warnings: list[str]) -> list[str]:
+    # A pilot has no holdout by design: every action is a random draw, and its lift is
+    # the policy-vs-no-one comparison; the holdout advice does not apply to it.
+    if not campaign.is_pilot:
+        return list(warnings)
+    kept = [w for w in warnings if not w.startswith("The targeted comparison")]
+    return [
+        "randomized pilot: every action was drawn at the pilot shares, so the lift is the "
+        "comparison with contacting no one (there is no holdout among chosen contacts)",
+        *kept,
+    ]
 
 
 def _costs(logged: LoggedDecisions, campaign: Campaign) -> dict[str, float]:

@@ -9,6 +9,7 @@ SNIPS and DR on the logged decisions that have an outcome.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from datetime import UTC, datetime, timedelta
 from typing import Any
 
 import numpy as np
@@ -236,5 +237,15 @@ def _overlap_warning(bundle: LoadedBundle, logged: LoggedDecisions) -> list[str]
     return [
         f"{bundle.name}:{bundle.version} was trained on decisions of this campaign from "
         f"{first} to {last}, which overlap the replay window; a policy judged on its own "
-        f"training data looks better than it is. Replay on later decisions (--since {last})."
+        "training data looks better than it is. Replay on later decisions only "
+        f"(--since {after(last)}: --since includes its own time, so this is one microsecond "
+        "after the last training decision)."
     ]
+
+
+def after(stamp: str) -> str:
+    """The log time one microsecond after ``stamp`` (ISO 8601), the first time a
+    ``--since`` bound excludes it (``--since`` is inclusive)."""
+    moment = datetime.fromisoformat(stamp.replace("Z", "+00:00"))
+    later = (moment + timedelta(microseconds=1)).astimezone(UTC)
+    return later.isoformat(timespec="microseconds").replace("+00:00", "Z")

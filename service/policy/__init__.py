@@ -14,7 +14,14 @@ from service.policy.decide import REASONS, DecisionBatch, decide
 from service.policy.draws import Draws, uniform_draw, uniform_draws, uniform_hash
 from service.policy.exploration import choice_probabilities, explore_pick, final_probabilities
 from service.policy.loader import load_campaigns, parse_campaigns
-from service.policy.rank import EXCLUSION_REASONS, RankResult, rank
+from service.policy.pilot import (
+    PILOT_MODEL,
+    PILOT_REASON,
+    pilot_decide,
+    pilot_decide_one,
+    pilot_draw,
+)
+from service.policy.rank import EXCLUSION_REASONS, RankResult, budget_price, rank
 from service.policy.single import Decision, decide_one, decision_row
 from service.policy.value import (
     do_not_contact_flags,
@@ -26,6 +33,8 @@ from service.policy.value import (
 __all__ = [
     "EXCLUSION_REASONS",
     "NO_CONTACT",
+    "PILOT_MODEL",
+    "PILOT_REASON",
     "REASONS",
     "ArmCost",
     "Campaign",
@@ -33,6 +42,7 @@ __all__ = [
     "DecisionBatch",
     "Draws",
     "RankResult",
+    "budget_price",
     "choice_probabilities",
     "decide",
     "decide_one",
@@ -44,6 +54,9 @@ __all__ = [
     "greedy_actions",
     "load_campaigns",
     "parse_campaigns",
+    "pilot_decide",
+    "pilot_decide_one",
+    "pilot_draw",
     "policy_hash",
     "rank",
     "two_sided_level",

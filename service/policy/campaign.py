@@ -37,11 +37,13 @@ class Campaign:
 
     Every field maps to the TOML key of the same name (see ``load_campaigns``); ``hash``
     is the :func:`policy_hash` of the whole definition, opt-out list and salt included,
-    and is recorded with every decision the policy makes.
+    and is recorded with every decision the policy makes. A campaign without ``model``
+    is a randomized *pilot*: each customer's action is drawn at ``pilot_shares`` (one
+    share per action, no contact first; default equal), see :mod:`service.policy.pilot`.
     """
 
     id: str
-    model: str
+    model: str | None
     arms: tuple[ArmCost, ...]
     salt: str
     model_version: str | None = None
@@ -52,6 +54,7 @@ class Campaign:
     confidence: float = 0.90
     dnc_margin: float = 0.0
     suppression: frozenset[str] = frozenset()
+    pilot_shares: tuple[float, ...] | None = None
     hash: str = field(init=False, repr=False, compare=False)
     _costs: npt.NDArray[np.float64] = field(init=False, repr=False, compare=False)
 
@@ -61,6 +64,17 @@ class Campaign:
         costs = np.array([arm.cost for arm in self.arms], dtype=np.float64)
         costs.setflags(write=False)  # shared by every request; nobody may change it
         object.__setattr__(self, "_costs", costs)
+
+    @property
+    def is_pilot(self) -> bool:
+        """No model: actions are drawn at random at the pilot shares."""
+        return self.model is None
+
+    def shares(self) -> tuple[float, ...]:
+        """Pilot share of each action (no contact, then the arms); equal by default."""
+        if self.pilot_shares is not None:
+            return self.pilot_shares
+        return tuple(1.0 / (len(self.arms) + 1) for _ in range(len(self.arms) + 1))
 
     @property
     def arm_names(self) -> tuple[str, ...]:
@@ -110,6 +124,11 @@ class Campaign:
             "confidence": self.confidence,
             "dnc_margin": self.dnc_margin,
             "suppressed": len(self.suppression),
+            "pilot_shares": (
+                dict(zip(self.action_labels(), self.shares(), strict=True))
+                if self.is_pilot
+                else None
+            ),
             "policy_hash": self.hash,
         }
 
@@ -120,7 +139,7 @@ def policy_hash(campaign: Campaign) -> str:
     Keys are sorted, numbers are floats, and the opt-out ids are sorted, so the hash
     changes exactly when something that can change a decision changes.
     """
-    definition = {
+    definition: dict[str, Any] = {
         "id": campaign.id,
         "model": campaign.model,
         "model_version": campaign.model_version,
@@ -134,6 +153,8 @@ def policy_hash(campaign: Campaign) -> str:
         "dnc_margin": float(campaign.dnc_margin),
         "suppression": sorted(campaign.suppression),
     }
+    if campaign.is_pilot:  # only pilots carry the key, so other campaigns keep their hash
+        definition["pilot_shares"] = [float(x) for x in campaign.shares()]
     return hashlib.sha256(orjson.dumps(definition, option=orjson.OPT_SORT_KEYS)).hexdigest()
 
 
@@ -149,6 +170,16 @@ def _check_rate(campaign: str, key: str, value: float, *, low: float, closed: bo
         raise _fail(campaign, key, f"= {value!r} must lie in {interval}; change it in the file.")
 
 
+def _check_shares(c: Campaign) -> None:
+    shares = c.pilot_shares or ()
+    if c.model is not None:
+        raise _fail(c.id, "pilot_shares", "applies only to a pilot; remove it or remove 'model'.")
+    if len(shares) != len(c.arms) + 1:
+        raise _fail(c.id, "pilot_shares", f"needs one share per action {list(c.action_labels())}.")
+    if not all(math.isfinite(x) and x > 0 for x in shares) or abs(sum(shares) - 1) > 1e-9:
+        raise _fail(c.id, "pilot_shares", f"= {list(shares)} must be shares > 0 that sum to 1.")
+
+
 def _check_campaign(c: Campaign) -> None:
     if not _NAME.match(c.id):
         raise PolicyError(
@@ -157,8 +188,14 @@ def _check_campaign(c: Campaign) -> None:
         )
     for key in ("model", "salt"):
         text = getattr(c, key)
+        if key == "model" and text is None:
+            continue  # a pilot
         if not isinstance(text, str) or not text.strip():
             raise _fail(c.id, key, "is missing or empty; set it to a non-empty string.")
+    if c.model is None and c.model_version is not None:
+        raise _fail(c.id, "model_version", "pins a version but the campaign names no model.")
+    if c.pilot_shares is not None:
+        _check_shares(c)
     if c.model_version is not None and not c.model_version.strip():
         raise _fail(c.id, "model_version", "is empty; remove it to use the champion.")
     if not c.arms:

@@ -27,11 +27,13 @@ REASONS = {
     "best_ev": "the arm with the largest positive expected value",
     "explored": "the action was drawn at random among the options (exploration)",
     "holdout": "the chosen contact was withheld at random as control (holdout)",
+    "pilot": "a randomized pilot (no model yet): the action was drawn at the pilot shares",
 }
 """Short reason codes a decision may carry, with their meaning."""
 
-# Bit per reason, in the order codes are listed on a decision.
-_ORDER = tuple(REASONS)
+# Bit per reason, in the order codes are listed on a decision ("pilot" is set only by
+# service.policy.pilot).
+_ORDER = tuple(REASONS)[:-1]
 
 
 @dataclass(frozen=True)

@@ -7,7 +7,7 @@ from pathlib import Path
 from typing import Any
 
 from service.errors import PolicyError
-from service.policy.campaign import ArmCost, Campaign
+from service.policy.campaign import NO_CONTACT, ArmCost, Campaign
 
 __all__ = ["load_campaigns", "parse_campaigns"]
 
@@ -24,6 +24,7 @@ _KEYS = {
     "suppression",
     "suppression_file",
     "arms",
+    "pilot_shares",
 }
 _FLOAT_KEYS = ("value", "exploration", "holdout", "confidence", "dnc_margin")
 
@@ -32,7 +33,9 @@ def load_campaigns(path: str | Path) -> dict[str, Campaign]:
     """Load every campaign of a TOML file, validating each key.
 
     The file holds one table per campaign, ``[campaigns.<id>]``, with keys ``model``
-    (registry name), ``model_version`` (optional pin; default the champion), ``value``
+    (registry name; leave it out for a randomized pilot, with optional ``pilot_shares``
+    mapping ``none`` and every arm to its share), ``model_version`` (optional pin;
+    default the champion), ``value``
     (value of a conversion, default 1.0), ``exploration`` and ``holdout`` (rates in
     [0, 1), default 0), ``capacity`` (default list length for ranking), ``confidence``
     (one-sided level of the do-not-contact bound, in (0.5, 1), default 0.90),
@@ -84,9 +87,8 @@ def _parse_campaign(cid: str, table: dict[str, Any], base_dir: Path) -> Campaign
         raise PolicyError(
             f"Campaign {cid!r}: unknown key(s) {unknown}; allowed keys are {sorted(_KEYS)}."
         )
-    for key in ("model", "salt"):
-        if key not in table:
-            raise PolicyError(f"Campaign {cid!r}: key {key!r} is required; add it.")
+    if "salt" not in table:
+        raise PolicyError(f"Campaign {cid!r}: key 'salt' is required; add it.")
     options: dict[str, Any] = {
         key: _number(cid, key, table[key]) for key in _FLOAT_KEYS if key in table
     }
@@ -94,14 +96,27 @@ def _parse_campaign(cid: str, table: dict[str, Any], base_dir: Path) -> Campaign
         options["capacity"] = _integer(cid, "capacity", table["capacity"])
     if "model_version" in table:
         options["model_version"] = _text(cid, "model_version", table["model_version"])
+    arms = _arms(cid, table.get("arms"))
+    if "pilot_shares" in table:
+        options["pilot_shares"] = _shares(cid, table["pilot_shares"], arms)
     return Campaign(
         id=cid,
-        model=_text(cid, "model", table["model"]),
+        model=_text(cid, "model", table["model"]) if "model" in table else None,
         salt=_text(cid, "salt", table["salt"]),
-        arms=_arms(cid, table.get("arms")),
+        arms=arms,
         suppression=_suppression(cid, table, base_dir),
         **options,
     )
+
+
+def _shares(cid: str, table: object, arms: tuple[ArmCost, ...]) -> tuple[float, ...]:
+    labels = [NO_CONTACT, *(arm.name for arm in arms)]
+    if not isinstance(table, dict) or set(table) != set(labels):
+        raise PolicyError(
+            f"Campaign {cid!r}: key 'pilot_shares' must be a table with one share per action, "
+            f"keys {labels}, e.g. `pilot_shares = {{ none = 0.5, ... }}`; got {table!r}."
+        )
+    return tuple(_number(cid, f"pilot_shares.{label}", table[label]) for label in labels)
 
 
 def _text(cid: str, key: str, value: object) -> str:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import difflib
 import os
 import shutil
 import tempfile
@@ -86,12 +87,10 @@ class ModelRegistry:
         if version is None:
             champion = self.champion(name)
             if champion is None:
-                hint = (
-                    f"promote one with `upshot models promote {name} VERSION --reason ...`"
-                    if self.versions(name)
-                    else "train one with `upshot train`"
-                )
-                raise NotFoundError(f"Model {name!r} has no champion; {hint}.")
+                if self.versions(name):
+                    hint = f"promote one with `upshot models promote {name} VERSION --reason ...`"
+                    raise NotFoundError(f"Model {name!r} has no champion; {hint}.")
+                raise NotFoundError(self._unknown_model(name))
             return champion
         if version not in self.versions(name):
             known = self.versions(name)
@@ -100,6 +99,19 @@ class ModelRegistry:
                 + (f"; its versions are {known}." if known else "; it has no versions yet.")
             )
         return version
+
+    def _unknown_model(self, name: str) -> str:
+        known = self.names()
+        close = difflib.get_close_matches(name, known, n=1)
+        head = f"Model {name!r} has no champion: there is no model of that name in {self.root}"
+        if close:
+            return f"{head}; did you mean {close[0]!r}? Known models: {known}."
+        if known:
+            return (
+                f"{head} (known models: {known}); fix the name, or train it with "
+                f"`upshot train ... --name {name}`."
+            )
+        return f"{head}, which has no models yet; train one with `upshot train ... --name {name}`."
 
     def path(self, name: str, version: str | None = None) -> Path:
         """Directory of a version (the champion when ``version`` is None)."""

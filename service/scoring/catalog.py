@@ -18,10 +18,11 @@ import numpy.typing as npt
 
 from service.decisions import DecisionLog
 from service.errors import BundleError, NotFoundError, PolicyError
-from service.policy import Campaign, load_campaigns
+from service.policy import PILOT_MODEL, Campaign, load_campaigns
 from service.registry import LoadedBundle, ModelRegistry
 from service.scoring.estimates import ServableModel, servable
 from service.scoring.features import FeatureSchema
+from service.scoring.pilot import OpenSchema, PilotModel
 
 __all__ = [
     "BoundCampaign",
@@ -105,8 +106,12 @@ class Catalog:
         )
 
     def serving(self) -> dict[str, tuple[str, str]]:
-        """Campaign -> (model name, version) for every served campaign."""
-        return {cid: (b.bundle.name, b.bundle.version) for cid, b in self.bound.items()}
+        """Campaign -> (model name, version) for every served campaign (pilots have none)."""
+        return {
+            cid: (b.bundle.name, b.bundle.version)
+            for cid, b in self.bound.items()
+            if not b.campaign.is_pilot
+        }
 
 
 _Loaded = tuple[LoadedBundle, ServableModel, FeatureSchema]
@@ -146,6 +151,8 @@ def bind_campaigns(
     cache: dict[tuple[str, str], _Loaded] = {}
     if previous is not None:
         for b in previous.bound.values():
+            if b.campaign.is_pilot:
+                continue
             cache[(b.bundle.name, b.bundle.version)] = (b.bundle, b.model, b.schema)
     bound: dict[str, BoundCampaign] = {}
     problems: dict[str, str] = {}
@@ -164,6 +171,8 @@ def _bind(
     cache: dict[tuple[str, str], _Loaded],
     compile: bool,
 ) -> BoundCampaign:
+    if campaign.model is None:
+        return _pilot(campaign)
     version = registry.resolve(campaign.model, campaign.model_version)
     key = (campaign.model, version)
     if key not in cache:
@@ -180,6 +189,21 @@ def _bind(
         schema=schema,
         arm_columns=campaign.arm_columns(arms),
         outcome_type=str(bundle.manifest.get("outcome_type", "binary")),
+    )
+
+
+def _pilot(campaign: Campaign) -> BoundCampaign:
+    # A randomized pilot has no model: open features, zero estimates, logged as "pilot".
+    name, version = PILOT_MODEL
+    arms = list(campaign.arm_names)
+    manifest = {"features": [], "arms": arms, "outcome_type": "unknown"}
+    return BoundCampaign(
+        campaign=campaign,
+        bundle=LoadedBundle(name, version, Path(), manifest, None),
+        model=PilotModel(len(arms)),
+        schema=OpenSchema(),
+        arm_columns=np.arange(len(arms), dtype=np.intp),
+        outcome_type="unknown",
     )
 
 

@@ -24,6 +24,8 @@ from service.policy import (
     DecisionBatch,
     RankResult,
     decide,
+    pilot_decide,
+    pilot_decide_one,
     rank,
     two_sided_level,
     uniform_draw,
@@ -99,11 +101,15 @@ def decide_one(
     mu0 = float(est.mu0[0])
     worth = campaign.value if value is None else float(value)
     costs = bound.cost_list
-    d = policy_decide_one(
-        tau, high, mu0, worth, costs, customer_id in campaign.suppression,
-        uniform_draw(campaign.salt, campaign.id, customer_id),
-        exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
-    )  # fmt: skip
+    draws = uniform_draw(campaign.salt, campaign.id, customer_id)
+    if campaign.is_pilot:  # no model: the action is drawn at the pilot shares
+        d = pilot_decide_one(campaign.shares(), customer_id in campaign.suppression, draws[1])
+    else:
+        d = policy_decide_one(
+            tau, high, mu0, worth, costs, customer_id in campaign.suppression, draws,
+            exploration=campaign.exploration, holdout=campaign.holdout,
+            margin=campaign.dnc_margin,
+        )  # fmt: skip
     labels = bound.labels
     model = (bound.bundle.name, bound.bundle.version)
     d_id = decision_id(campaign.id, customer_id, campaign.hash, model, clean, worth)
@@ -165,6 +171,13 @@ def rank_many(
     _refuse_duplicates(ids)
     if capacity is None and budget is None:
         capacity = bound.campaign.capacity
+        if capacity is None:
+            raise DataError(
+                f"No limit for the list: the request gives neither capacity nor budget and "
+                f"campaign {bound.campaign.id!r} sets no default capacity, so every candidate "
+                "would be listed. Send capacity and/or budget, or set capacity in the "
+                "campaign file."
+            )
     estimates, value_array = _estimate(bound, ids, table, values)
     context = _rank_context(ids, capacity, budget)
     return _decide(bound, list(ids), _feature_rows(table), value_array, estimates,
@@ -195,11 +208,16 @@ def _decide(
     ranking: tuple[int | None, float | None, str] | None,
 ) -> Decided:
     campaign = bound.campaign
-    batch = decide(
-        est.tau, est.low, est.high, est.mu0, values, campaign.costs,
-        campaign.opted_out(ids), uniform_draws(campaign.salt, campaign.id, ids),
-        exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
-    )  # fmt: skip
+    draws = uniform_draws(campaign.salt, campaign.id, ids)
+    if campaign.is_pilot:  # no model: the action is drawn at the pilot shares
+        batch = pilot_decide(campaign.shares(), campaign.opted_out(ids), draws[1])
+    else:
+        batch = decide(
+            est.tau, est.low, est.high, est.mu0, values, campaign.costs,
+            campaign.opted_out(ids), draws,
+            exploration=campaign.exploration, holdout=campaign.holdout,
+            margin=campaign.dnc_margin,
+        )  # fmt: skip
     costs = campaign.costs
     ranked = None
     if ranking is not None:

@@ -119,3 +119,62 @@ def test_drift_prints_a_psi_table(world, capsys) -> None:
     assert run_cli([*argv, "--models-dir", str(world.models_dir)]) == 0
     out = capsys.readouterr().out
     assert "tenure_months" in out and "common practice, no source" in out
+
+
+def test_replay_compares_with_the_champion_like_the_promotion_check(
+    world, tmp_path, capsys
+) -> None:
+    models = tmp_path / "models"
+    shutil.copytree(world.models_dir, models)
+    worse = train_worse_model(models)
+    argv = ["replay", "--campaign", CAMPAIGN, "--model", f"larkspur:{worse}"]
+    assert run_cli([*argv, *_common(world), "--models-dir", str(models)]) == 0
+    out = capsys.readouterr().out
+    assert f"against the champion larkspur:{world.first_version}" in out
+    assert "would refuse" in out  # and `models promote --require-replay` does refuse
+    promote = ["models", "promote", "larkspur", worse, "--reason", "t", "--require-replay"]
+    assert run_cli([*promote, "--campaign", CAMPAIGN, *_common(world), "--models-dir",
+                    str(models)]) == 1  # fmt: skip
+    capsys.readouterr()
+    assert run_cli([*argv, "--json", *_common(world), "--models-dir", str(models)]) == 0
+    body = json.loads(capsys.readouterr().out)
+    assert body["against_champion"]["passes_promotion_check"] is False
+
+
+def test_export_carries_value_and_costs_and_warns_on_thin_arms(world, tmp_path, capsys) -> None:
+    out_file = tmp_path / "thin.csv"
+    # A window of the log small enough that an arm has few rows.
+    logged_since = world.boundaries[1]
+    argv = ["export", "--campaign", CAMPAIGN, "--out", str(out_file), "--since", logged_since]
+    assert run_cli([*argv, *_common(world)]) == 0
+    out = capsys.readouterr().out
+    command = next(line for line in out.splitlines() if "upshot train" in line)
+    assert "--value 40 --cost email=0.4,call=3.5" in command
+    counts = pd.read_csv(out_file)["treatment"].value_counts()
+    thin = [str(label) for label, rows in counts.items() if rows < 200]
+    for label in thin:
+        assert f"WARNING: action {label!r} has only {counts[label]} row(s)" in out
+    assert ("WARNING" in out) == bool(thin)
+
+
+def test_overlap_warning_suggests_a_bound_that_excludes_training() -> None:
+    from service.loop.logged import utc_text
+    from service.loop.replay import after
+
+    last = "2026-03-02T09:00:00.000000+00:00"
+    assert after(last) == "2026-03-02T09:00:00.000001Z"
+    bound = utc_text(after(last), "since")
+    assert bound is not None and bound > last  # strictly after: --since is inclusive
+
+
+def test_lift_refuses_without_a_random_control(world, tmp_path, capsys) -> None:
+    from loop_world import write_campaigns
+
+    campaigns = write_campaigns(tmp_path / "fixed.toml", exploration=0.0, holdout=0.0)
+    path = tmp_path / "fixed.sqlite3"
+    with DecisionLog.open(path) as log:
+        run_day_in_process(bind(world.models_dir, campaigns), log, OutcomeStore(path), 3, 300)
+    argv = ["lift", CAMPAIGN, "--log", str(path), "--campaigns", str(campaigns)]
+    assert run_cli(argv) == 1
+    err = capsys.readouterr().err
+    assert "no randomized share" in err and "holdout" in err

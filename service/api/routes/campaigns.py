@@ -50,7 +50,7 @@ def describe_campaigns(catalog: Catalog) -> list[CampaignInfo]:
                 confidence=campaign.confidence,
                 dnc_margin=campaign.dnc_margin,
                 suppressed=len(campaign.suppression),
-                ready=cid in serving,
+                ready=cid in catalog.bound,  # pilots serve without a model version
                 problem=catalog.problems.get(cid),
             )
         )
