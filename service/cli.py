@@ -30,6 +30,7 @@ COMMANDS: tuple[str, ...] = (
     "replay",
     "export",
     "drift",
+    "log",
 )
 """Modules of ``service.commands`` that provide sub-commands, in help order."""
 
