@@ -160,9 +160,9 @@ class PostgresLog(DecisionLog):
             while rows := cursor.fetchmany(chunk):
                 yield rows
 
-    def _feature_names(
+    def _feature_types(
         self, campaign: str, since: str | None, until: str | None, with_outcome: bool
-    ) -> Iterable[str]:
+    ) -> Iterable[tuple[str, str]]:
         clauses, params = ["d.campaign = ?"], [campaign]
         for bound, op in ((since, ">="), (until, "<")):
             if bound is not None:
@@ -171,11 +171,11 @@ class PostgresLog(DecisionLog):
         if with_outcome:
             clauses.append("EXISTS (SELECT 1 FROM outcomes o WHERE o.decision_id = d.decision_id)")
         sql = (
-            "SELECT DISTINCT jsonb_object_keys(d.features::jsonb) FROM decisions d "
-            f"WHERE {' AND '.join(clauses)}"
+            "SELECT DISTINCT f.key, jsonb_typeof(f.value) FROM decisions d, "
+            f"jsonb_each(d.features::jsonb) AS f WHERE {' AND '.join(clauses)}"
         )
         with self._read() as tx:
-            return [row[0] for row in tx.rows(sql, params)]
+            return [(row[0], row[1]) for row in tx.rows(sql, params)]
 
     def _close_connections(self) -> None:
         self._pool.close()
