@@ -18,6 +18,7 @@ from loop_world import (
     write_campaigns,
 )
 
+from service.decisions import DecisionLog
 from service.simulation import simulate
 
 pytestmark = pytest.mark.anyio
@@ -165,3 +166,24 @@ async def test_an_admin_corrects_an_outcome_with_a_reason(api) -> None:
     assert (
         missing.status_code == 404 and "no recorded outcome" in missing.json()["error"]["message"]
     )
+
+
+async def test_the_service_runs_on_postgres(world, tmp_path, postgres_empty_url) -> None:
+    app = make_app(world.models_dir, write_campaigns(tmp_path / "c.toml"), postgres_empty_url)
+    sim = simulate("larkspur", 600, random_state=41)
+    async with started(app) as client:
+        assert (await client.get("/readyz")).status_code == 200
+        cols = await score_columns(client, sim, 41)
+        # A retried batch is the same decisions, logged once.
+        assert (await score_columns(client, sim, 41))["decision_id"] == cols["decision_id"]
+        action = np.array([ACTIONS[a] for a in cols["action"]])
+        y = draw_outcomes(sim, action, seed=42)
+        bad = _payload(cols, y, [0, 1])
+        bad["outcomes"][1]["outcome"] = 2
+        assert (await client.post("/v1/outcomes", json=bad)).status_code == 422
+        done = await client.post("/v1/outcomes", json=_payload(cols, y, range(len(y))))
+        assert done.json()["recorded"] == len(y)
+        body = (await client.get(f"/v1/campaigns/{CAMPAIGN}/lift")).json()
+        assert body["decisions"] == body["with_outcome"] == len(y)
+    with DecisionLog.open(postgres_empty_url) as log:
+        assert log.counts().decisions == len(y)
