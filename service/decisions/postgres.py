@@ -18,7 +18,7 @@ from typing import Any
 
 import psycopg
 import psycopg.errors
-from psycopg_pool import ConnectionPool
+from psycopg_pool import ConnectionPool, PoolTimeout
 
 from service.decisions.location import redact
 from service.decisions.migrations import MIGRATIONS, SCHEMA_VERSION
@@ -132,9 +132,20 @@ class PostgresLog(DecisionLog):
         return _PostgresSink(self.url)
 
     @contextmanager
-    def _read(self) -> Iterator[Tx]:
+    def _connection(self) -> Iterator[psycopg.Connection[Any]]:
         self._check_open()
-        with self._pool.connection() as conn:
+        try:
+            with self._pool.connection() as conn:
+                yield conn
+        except (PoolTimeout, psycopg.OperationalError) as err:
+            raise DecisionLogError(
+                f"The decision log at {self.where!r} is unreachable ({_first_line(err)}); "
+                "check the database server and the network, then retry."
+            ) from err
+
+    @contextmanager
+    def _read(self) -> Iterator[Tx]:
+        with self._connection() as conn:
             conn.read_only = True
             try:
                 yield _PostgresTx(conn)
@@ -145,16 +156,14 @@ class PostgresLog(DecisionLog):
     @contextmanager
     def _write(self) -> Iterator[Tx]:
         # The pool's connection context commits on success and rolls back on an error.
-        self._check_open()
-        with self._pool.connection() as conn:
+        with self._connection() as conn:
             conn.execute("SELECT pg_advisory_xact_lock(%s)", (_OUTCOMES_LOCK,))
             yield _PostgresTx(conn)
 
     def _stream(
         self, sql: str, params: Sequence[Any], chunk: int
     ) -> Iterator[list[tuple[Any, ...]]]:
-        self._check_open()
-        with self._pool.connection() as conn, conn.cursor(name="upshot_rows") as cursor:
+        with self._connection() as conn, conn.cursor(name="upshot_rows") as cursor:
             cursor.itersize = chunk
             cursor.execute(_marks(sql), list(params))
             while rows := cursor.fetchmany(chunk):
@@ -207,16 +216,16 @@ class _PostgresSink:
 
     def __init__(self, url: str) -> None:
         self._url = url
-        self._conn = self._fresh()
+        self._live: psycopg.Connection[Any] | None = None  # connected at the first commit
 
-    def _fresh(self) -> psycopg.Connection[Any]:
-        conn = _connect(self._url, autocommit=True)
-        conn.execute("SET synchronous_commit = on")
-        return conn
+    @property
+    def _conn(self) -> psycopg.Connection[Any]:
+        if self._live is None or self._live.closed or self._live.broken:
+            self._live = _connect(self._url, autocommit=True)
+            self._live.execute("SET synchronous_commit = on")
+        return self._live
 
     def begin(self) -> None:
-        if self._conn.closed or self._conn.broken:
-            self._conn = self._fresh()
         self._conn.execute("BEGIN")
 
     def insert(self, rows: list[Row]) -> int:
@@ -248,11 +257,13 @@ class _PostgresSink:
         self._conn.execute("COMMIT")
 
     def rollback(self) -> None:
+        live = self._live
         try:
-            if not self._conn.closed and not self._conn.broken:
-                self._conn.execute("ROLLBACK")
+            if live is not None and not live.closed and not live.broken:
+                live.execute("ROLLBACK")
         except psycopg.Error:
             logger.exception("decision log rollback failed")
 
     def close(self) -> None:
-        self._conn.close()
+        if self._live is not None:
+            self._live.close()

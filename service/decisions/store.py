@@ -18,6 +18,7 @@ from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import AbstractContextManager
 from dataclasses import dataclass
 from datetime import UTC, datetime
+from os import PathLike
 from types import TracebackType
 from typing import Any, Protocol
 
@@ -94,7 +95,9 @@ class DecisionLog(ABC):
         self._closed = False
 
     @staticmethod
-    def open(location: str | Any, *, group_limit: int = 1000, create: bool = True) -> DecisionLog:
+    def open(
+        location: str | PathLike[str], *, group_limit: int = 1000, create: bool = True
+    ) -> DecisionLog:
         """Open the log at a file path, ``sqlite:///<path>`` or ``postgresql://...``.
 
         Pending schema migrations are applied (see ``upshot log migrate``).
