@@ -5,6 +5,9 @@ commit with one transaction per append call (every append waits for its COMMIT, 
 service does before answering): append calls per second, records per second and records
 per transaction.
 
+Bulk path: ``python bench/decision_log.py --copy --postgres URL`` compares COPY through a
+staging table with one INSERT per row, for calls of 100 to 10,000 decisions.
+
 Reads: ``python bench/decision_log.py --reads 400000 [--postgres URL]`` builds a log of that
 many decisions with outcomes, then runs each way of reading a campaign's window for the
 realized lift (read, then campaign_lift) in its own process and prints wall time and peak
@@ -245,6 +248,30 @@ def _writes(locations: dict[str, Callable[[str], str]], appends: int) -> None:
                 )
 
 
+def _copy_vs_insert(admin_url: str) -> None:
+    """PostgreSQL bulk path: COPY into a staging table vs one INSERT per row."""
+    import service.decisions.postgres as engine
+
+    rng = np.random.default_rng(0)
+    print("postgresql bulk appends (one task): records/s")
+    print(f"{'rows/call':>10}{'row INSERTs':>13}{'COPY':>9}{'ratio':>7}")
+    for size in (100, 1000, 10_000):
+        batches = [
+            _columns(i * size, size, "2026-03-01T00:00:00+00:00", rng)
+            for i in range(max(20_000 // size, 3))
+        ]
+        speeds = []
+        for copy_min in (10**9, 1):
+            engine._COPY_MIN = copy_min
+            url = _fresh_postgres(admin_url, f"upshot_bench_copy_{size}_{min(copy_min, 2)}")
+            with DecisionLog.open(url) as log:
+                start = time.perf_counter()
+                for batch in batches:
+                    log.append_columns_sync([batch])
+                speeds.append(size * len(batches) / (time.perf_counter() - start))
+        print(f"{size:>10}{speeds[0]:>13.0f}{speeds[1]:>9.0f}{speeds[1] / speeds[0]:>7.1f}")
+
+
 def _fresh_postgres(admin_url: str, name: str) -> str:
     import psycopg
 
@@ -262,6 +289,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__)
     parser.add_argument("--appends", type=int, default=2000, help="append calls per cell")
     parser.add_argument("--reads", type=int, default=0, help="decisions for the read table")
+    parser.add_argument("--copy", action="store_true", help="PostgreSQL: COPY vs INSERT")
     parser.add_argument(
         "--postgres",
         default=os.environ.get("UPSHOT_TEST_POSTGRES_URL"),
@@ -270,6 +298,11 @@ def main() -> None:
     args = parser.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
+        if args.copy:
+            if not args.postgres:
+                raise SystemExit("--copy needs --postgres URL (or UPSHOT_TEST_POSTGRES_URL)")
+            _copy_vs_insert(args.postgres)
+            return
         if args.reads:
             locations = {"sqlite": str(folder / "reads.db")}
             if args.postgres:
