@@ -80,7 +80,7 @@ def create_app(
     metrics_.registry.register(
         DriftCollector(
             lambda: (
-                state.log.path,
+                state.log,
                 {
                     c: b.bundle
                     for c, b in state.catalog.bound.items()
@@ -136,6 +136,7 @@ def create_app(
     for module in (health, score, rank, models, campaigns, admin, metrics, outcomes, lift):
         app.include_router(module.router)
     install_docs(app, title=app.title)
+    app.include_router(outcomes.admin_router)
     return app
 
 

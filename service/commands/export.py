@@ -37,16 +37,18 @@ def register(subparsers: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Export and print how to train on the table."""
-    from service.loop import export_training_table, read_logged
+    from service.loop import export_from_log
     from service.policy import load_campaigns
 
     # The campaign file only adds value and costs to the printed command; not required.
     campaigns = load_campaigns(args.campaigns) if args.campaigns.is_file() else {}
     campaign = campaigns.get(args.campaign)
-    logged = read_logged(args.log, args.campaign, since=args.since, until=args.until)
     value = None if campaign is None else campaign.value
     costs = None if campaign is None else {arm.name: arm.cost for arm in campaign.arms}
-    result = export_training_table(logged, args.out, value=value, costs=costs)
+    result = export_from_log(
+        args.log, args.campaign, args.out, since=args.since, until=args.until,
+        value=value, costs=costs,
+    )  # fmt: skip
     p = result.provenance
     print(
         f"wrote {result.rows} decisions of {args.campaign} ({p['first_decision_at']} .. "

@@ -8,8 +8,7 @@ import numpy as np
 import pytest
 from api_support import CAMPAIGN_TOML, columns_of, started
 
-from service.decisions import Outcome
-from service.decisions.outcomes import OutcomeStore
+from service.decisions import DecisionLog, Outcome
 from service.loop import export_training_table, read_logged
 from service.registry import ModelRegistry
 from service.simulation import simulate
@@ -73,10 +72,12 @@ async def test_pilot_serves_logs_and_exports_a_first_model(
     # Outcomes drawn from the simulation's known response law (invented demo design).
     expected = sim.expected_outcomes()
     y = (np.random.default_rng(3).random(4000) < expected[np.arange(4000), action]).astype(float)
-    store = OutcomeStore(Path(settings.decision_log))
-    store.record([Outcome(d, v) for d, v in zip(answer["decision_id"], y, strict=True)])
-    logged = read_logged(settings.decision_log, "pilot")
-    assert {r.model_name for r in logged.records} == {"pilot"}
+    with DecisionLog.open(settings.decision_log) as store:
+        store.record_outcomes(
+            [Outcome(d, v) for d, v in zip(answer["decision_id"], y, strict=True)]
+        )
+        logged = read_logged(store, "pilot")
+    assert {m.split(":")[0] for m in logged.models()} == {"pilot"}
     exported = export_training_table(logged, tmp_path / "pilot.csv")
     assert exported.rows == 4000
     table = read_table(exported.path)
@@ -111,12 +112,12 @@ def test_pilot_lift_and_drift_say_what_a_pilot_is(
     ).get("pilot")
     decided = decide_many(bound, ids, bound.schema.table_from_columns(
         {k: v for k, v in columns_of(ids, sim.X).items() if k != "id"}, 600), None)  # fmt: skip
+    y = sim.expected_outcomes()[np.arange(600), decided.batch.action] > 0.5
     with DecisionLog.open(settings.decision_log) as log:
         log.append_sync(decided.records)
-    y = sim.expected_outcomes()[np.arange(600), decided.batch.action] > 0.5
-    OutcomeStore(Path(settings.decision_log)).record(
-        [Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)]
-    )
+        log.record_outcomes(
+            [Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)]
+        )
     common = ["--log", str(settings.decision_log), "--campaigns", str(campaigns_file)]
     assert main(["lift", "pilot", *common]) == 0
     assert "randomized pilot" in capsys.readouterr().out

@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from service.decisions import DecisionLog
-from service.decisions.outcomes import Outcome, OutcomeStore
+from service.decisions.outcomes import Outcome
 from service.registry import ModelRegistry
 from service.scoring import Catalog, bind_campaigns, decide_many
 from service.simulation import SimulatedCampaign, simulate
@@ -97,7 +97,7 @@ def draw_outcomes(sim: SimulatedCampaign, action: np.ndarray, seed: int) -> np.n
 
 
 def run_day_in_process(
-    catalog: Catalog, log: DecisionLog, store: OutcomeStore | None, day: int, n: int
+    catalog: Catalog, log: DecisionLog, store: DecisionLog | None, day: int, n: int
 ) -> Day:
     """Score a day's customers through the scoring engine, log them, post outcomes (unless
     ``store`` is None)."""
@@ -110,7 +110,9 @@ def run_day_in_process(
     batch = decided.batch
     y = draw_outcomes(sim, batch.action, seed=200 + day)
     if store is not None:
-        store.record([Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)])
+        store.record_outcomes(
+            [Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)]
+        )
     return Day(sim, ids, decided.decision_ids, batch.action, batch.chosen, batch.action_probs, y)
 
 
@@ -171,7 +173,7 @@ class started:  # noqa: N801 - used like a function: `async with started(app) as
         await self._lifespan.__aexit__(*exc)
 
 
-def make_app(models_dir: Path, campaigns_file: Path, log_path: Path) -> Any:
+def make_app(models_dir: Path, campaigns_file: Path, log_path: Path | str) -> Any:
     """The real service app on this world (scikit-learn scoring path, no API keys)."""
     from service.api.app import create_app
     from service.config import load_settings

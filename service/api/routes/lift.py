@@ -65,7 +65,7 @@ async def campaign_lift_report(
     start = _moment(since, "since") or _days_before(reference, state.settings.lift_window_days)
 
     def work() -> dict[str, Any]:
-        logged = read_logged(log.path, campaign_id, since=start, until=end)
+        logged = read_logged(log, campaign_id, since=start, until=end, detail=False)
         return campaign_lift(logged, campaign, confidence=confidence).to_dict()
 
     with state.heavy_reads.slot():
