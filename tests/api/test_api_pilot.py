@@ -101,7 +101,7 @@ def test_pilot_lift_and_drift_say_what_a_pilot_is(
     from service.cli import main
     from service.decisions import DecisionLog
     from service.policy import load_campaigns
-    from service.scoring import bind_campaigns, decide_many
+    from service.scoring import bind_campaigns, decide_chunk, emit_columns
 
     campaigns_file.write_text(CAMPAIGN_TOML + PILOT_TOML, encoding="utf-8")
     settings = make_settings()
@@ -110,13 +110,14 @@ def test_pilot_lift_and_drift_say_what_a_pilot_is(
     bound = bind_campaigns(
         ModelRegistry(settings.models_dir), load_campaigns(campaigns_file), compile=False
     ).get("pilot")
-    decided = decide_many(bound, ids, bound.schema.table_from_columns(
+    decided = decide_chunk(bound, ids, bound.schema.table_from_columns(
         {k: v for k, v in columns_of(ids, sim.X).items() if k != "id"}, 600), None)  # fmt: skip
     y = sim.expected_outcomes()[np.arange(600), decided.batch.action] > 0.5
     with DecisionLog.open(settings.decision_log) as log:
-        log.append_sync(decided.records)
+        columns = emit_columns(decided)
+        log.append_columns_sync([columns])
         log.record_outcomes(
-            [Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)]
+            [Outcome(d, float(v)) for d, v in zip(columns.decision_id, y, strict=True)]
         )
     common = ["--log", str(settings.decision_log), "--campaigns", str(campaigns_file)]
     assert main(["lift", "pilot", *common]) == 0
