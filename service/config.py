@@ -57,6 +57,9 @@ class Settings(BaseSettings):
     max_body_bytes: int = Field(64 * _MIB, ge=1024, le=1024 * _MIB)
     max_batch: int = Field(100_000, ge=1, le=1_000_000)
     compiled: bool = True
+    # Replicas: how often each one polls the registry and the campaign file (0: never).
+    sync_seconds: float = Field(2.0, ge=0.0, le=3600.0)
+    workers: int = Field(1, ge=1, le=64)
     log_level: Literal["debug", "info", "warning", "error"] = "info"
 
     @field_validator("decision_log")
