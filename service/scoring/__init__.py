@@ -12,6 +12,7 @@ share this path.
 
 from __future__ import annotations
 
+from service.scoring.batches import RankedChunks, rank_batch, score_batch
 from service.scoring.catalog import (
     BoundCampaign,
     Catalog,
@@ -20,12 +21,24 @@ from service.scoring.catalog import (
     readiness_problems,
 )
 from service.scoring.committer import Committer
-from service.scoring.engine import Decided, Single, decide_many, decide_one, rank_many
+from service.scoring.engine import (
+    CHUNK_ROWS,
+    Decided,
+    Ranking,
+    Single,
+    decide_chunk,
+    decide_one,
+    emit_columns,
+    rank_chunks,
+    refuse_duplicates,
+    resolve_values,
+)
 from service.scoring.estimates import Estimates, ServableModel, servable
 from service.scoring.features import FeatureSchema, FeatureTable, InvalidFeatures
-from service.scoring.views import decision_columns, decision_rows, ranked_list
+from service.scoring.views import column_body, column_part, decision_rows, ranked_list
 
 __all__ = [
+    "CHUNK_ROWS",
     "BoundCampaign",
     "Catalog",
     "Committer",
@@ -37,13 +50,21 @@ __all__ = [
     "InvalidFeatures",
     "ServableModel",
     "bind_campaigns",
-    "decide_many",
+    "RankedChunks",
+    "Ranking",
+    "column_body",
+    "column_part",
+    "decide_chunk",
     "decide_one",
-    "decision_columns",
     "decision_rows",
+    "emit_columns",
     "load_catalog",
-    "rank_many",
+    "rank_batch",
+    "rank_chunks",
     "ranked_list",
     "readiness_problems",
+    "refuse_duplicates",
+    "resolve_values",
+    "score_batch",
     "servable",
 ]

@@ -5,33 +5,78 @@ a transaction and an fsync whatever its size. The log's writer already groups ap
 that queue up while it commits; the :class:`Committer` also groups the requests that
 reach their commit in the same turn of the event loop into one append, so a busy
 service makes fewer, larger transactions. No request waits for a timer: the group is
-handed to the log on the next turn of the loop.
+handed to the log on the next turn of the loop. Single decisions come as records,
+batches and ranked lists as :class:`~service.decisions.DecisionColumns` (one per chunk).
 """
 
 from __future__ import annotations
 
 import asyncio
-from collections.abc import Awaitable
+from collections.abc import Awaitable, Callable, Sequence
+from typing import Generic, TypeVar
 
-from service.decisions import DecisionLog, DecisionRecord
+from service.decisions import DecisionColumns, DecisionLog, DecisionRecord
 from service.errors import DataError, DecisionLogError, UpshotError
 
 __all__ = ["Committer"]
 
-# Above this many records the log's row checks run in a worker thread, so that a large
+# Above this many decisions the log's row checks run in a worker thread, so that a large
 # batch does not hold up the event loop (and single-customer requests) meanwhile.
 _THREAD_RECORDS = 2000
 
-_Waiter = tuple[list[DecisionRecord], "asyncio.Future[None]"]
+T = TypeVar("T")
+
+
+class _Group(Generic[T]):
+    """Items handed in during one turn of the event loop, appended together."""
+
+    def __init__(self, append: Callable[[Sequence[T]], Awaitable[None]]) -> None:
+        self._append_all = append
+        self._pending: list[tuple[list[T], asyncio.Future[None]]] = []
+        self._tasks: set[asyncio.Task[None]] = set()
+
+    async def add(self, items: list[T]) -> None:
+        loop = asyncio.get_running_loop()
+        waiter: asyncio.Future[None] = loop.create_future()
+        if not self._pending:
+            loop.call_soon(self._flush)
+        self._pending.append((items, waiter))
+        await waiter
+
+    def _flush(self) -> None:
+        group, self._pending = self._pending, []
+        task = asyncio.ensure_future(self._append(group))
+        self._tasks.add(task)  # keep a reference until it is done
+        task.add_done_callback(self._tasks.discard)
+
+    async def _append(self, group: list[tuple[list[T], asyncio.Future[None]]]) -> None:
+        try:
+            await _guard(self._append_all([item for items, _ in group for item in items]))
+        except DataError:
+            # Some request's decisions are invalid: commit each request on its own, so
+            # only that request fails.
+            for items, waiter in group:
+                try:
+                    await _guard(self._append_all(items))
+                except UpshotError as err:
+                    _settle(waiter, err)
+                else:
+                    _settle(waiter, None)
+        except UpshotError as err:
+            for _, waiter in group:
+                _settle(waiter, err)
+        else:
+            for _, waiter in group:
+                _settle(waiter, None)
 
 
 class Committer:
-    """Durable commits of decision records, grouped across concurrent requests."""
+    """Durable commits of decisions, grouped across concurrent requests."""
 
     def __init__(self, log: DecisionLog) -> None:
         self.log = log
-        self._pending: list[_Waiter] = []
-        self._tasks: set[asyncio.Task[None]] = set()
+        self._records: _Group[DecisionRecord] = _Group(log.append)
+        self._columns: _Group[DecisionColumns] = _Group(log.append_columns)
 
     async def commit(self, records: list[DecisionRecord]) -> None:
         """Return once ``records`` are committed.
@@ -48,38 +93,19 @@ class Committer:
         if len(records) > _THREAD_RECORDS:
             await _guard(asyncio.to_thread(self.log.append_sync, records))
             return
-        loop = asyncio.get_running_loop()
-        waiter: asyncio.Future[None] = loop.create_future()
-        if not self._pending:
-            loop.call_soon(self._flush)
-        self._pending.append((records, waiter))
-        await waiter
+        await self._records.add(records)
 
-    def _flush(self) -> None:
-        group, self._pending = self._pending, []
-        task = asyncio.ensure_future(self._append(group))
-        self._tasks.add(task)  # keep a reference until it is done
-        task.add_done_callback(self._tasks.discard)
+    async def commit_columns(self, columns: DecisionColumns) -> None:
+        """Return once the decisions of ``columns`` are committed (all or nothing).
 
-    async def _append(self, group: list[_Waiter]) -> None:
-        try:
-            await _guard(self.log.append([r for records, _ in group for r in records]))
-        except DataError:
-            # Some request's records are invalid: commit each request on its own, so
-            # only that request fails.
-            for records, waiter in group:
-                try:
-                    await _guard(self.log.append(records))
-                except UpshotError as err:
-                    _settle(waiter, err)
-                else:
-                    _settle(waiter, None)
-        except UpshotError as err:
-            for _, waiter in group:
-                _settle(waiter, err)
-        else:
-            for _, waiter in group:
-                _settle(waiter, None)
+        Raises as :meth:`commit` does.
+        """
+        if not len(columns):
+            return
+        if len(columns) > _THREAD_RECORDS:
+            await _guard(asyncio.to_thread(self.log.append_columns_sync, [columns]))
+            return
+        await self._columns.add([columns])
 
 
 async def _guard(append: Awaitable[object]) -> None:

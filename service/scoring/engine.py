@@ -1,24 +1,52 @@
-"""Request features -> model -> policy -> decision records, with no HTTP in sight.
+"""Request features -> model -> policy -> decisions in column form, with no HTTP in sight.
 
-:func:`decide_one` and :func:`decide_many` turn validated customers into decisions for
-one campaign; :func:`rank_many` also cuts a contact list. Each returns a
-:class:`Decided` whose ``records`` must be committed to the decision log
-(:class:`~service.scoring.Committer`) before anything is shown to a caller; the views in
-:mod:`service.scoring.views` turn it into response bodies.
+One customer: :func:`decide_one` (scalar Python, the latency path) returns a
+:class:`Single` with its log record and response body.
+
+Many customers are decided in chunks, so memory stays bounded whatever the list size,
+and each chunk is handed to the log as one :class:`~service.decisions.DecisionColumns`
+(no Python object per customer on the way):
+
+- :func:`decide_chunk` (validated features of one chunk -> model -> policy): a
+  :class:`Decided` with the estimates, the :class:`~service.policy.DecisionBatch` and the
+  canonical feature JSON of every row.
+- :func:`emit_columns` (a decided chunk -> ``DecisionColumns`` with decision ids), to
+  commit to the log *before* anything of the chunk is shown to a caller; the views in
+  :mod:`service.scoring.views` turn a chunk and its columns into response bodies.
+- Ranked lists cut globally: decide every chunk, then :func:`rank_chunks` ranks the
+  concatenation with :func:`service.policy.rank` (it needs only the ids and each chunk's
+  ``DecisionBatch``; their ``reasons`` may be dropped), then :func:`emit_columns` with the
+  :class:`Ranking` and the chunk's row offset gives each chunk's columns in mode
+  ``rank``. A caller reading chunks from a file may keep the decided chunks or decide
+  them again on a second pass: the same input gives the same decisions.
+
+Sketch of a ranked list over an external chunk source::
+
+    chunks = [decide_chunk(bound, ids, table, values) for ids, table, values in source]
+    ranking = rank_chunks(bound, [i for c in chunks for i in c.ids],
+                          [c.batch for c in chunks], capacity=500, budget=None)
+    offset = 0
+    for chunk in chunks:
+        log.append_columns_sync([emit_columns(chunk, ranking, offset)])
+        offset += len(chunk)
+
+Every function gives exactly the decisions, ids and propensities of the scalar
+reference (:func:`service.policy.decide_one` per customer); tests compare them row by
+row.
 """
 
 from __future__ import annotations
 
 import hashlib
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 import orjson
 
-from service.decisions import DecisionRecord, decision_id, utc_now
+from service.decisions import DecisionColumns, DecisionRecord, decision_id, utc_now
 from service.errors import DataError
 from service.policy import (
     DecisionBatch,
@@ -30,45 +58,32 @@ from service.policy import (
     uniform_draws,
 )
 from service.policy import decide_one as policy_decide_one
+from service.scoring.canonical import decision_ids, feature_json
 from service.scoring.catalog import BoundCampaign
 from service.scoring.estimates import Estimates
 from service.scoring.features import FeatureTable, InvalidFeatures
 
 __all__ = [
+    "CHUNK_ROWS",
     "Decided",
+    "Ranking",
     "Single",
-    "decide_many",
+    "decide_chunk",
     "decide_one",
-    "rank_many",
+    "emit_columns",
+    "rank_chunks",
+    "refuse_duplicates",
+    "resolve_values",
 ]
 
-Array = npt.NDArray[Any]
+FloatArray = npt.NDArray[np.float64]
+
+CHUNK_ROWS = 10_000
+"""Customers per chunk in the service: large enough that per-call costs vanish, small
+enough that a chunk's intermediate arrays and log rows stay a few megabytes."""
 
 
-@dataclass(frozen=True, eq=False)
-class Decided:
-    """Decisions for one campaign, ready to be committed and shown.
-
-    ``arm`` is the arm each decision's ``uplift`` refers to: the chosen arm (also when
-    held out), or the arm with the best expected value when no contact was chosen.
-    """
-
-    bound: BoundCampaign
-    ids: list[str]
-    values: npt.NDArray[np.float64]
-    estimates: Estimates
-    batch: DecisionBatch
-    input_reasons: list[list[str]]
-    decision_ids: list[str]
-    records: list[DecisionRecord]
-    arm: npt.NDArray[np.intp]
-    ranked: RankResult | None = None
-
-    def __len__(self) -> int:
-        return len(self.ids)
-
-
-# -- deciding ------------------------------------------------------------------------------
+# -- one customer --------------------------------------------------------------------------
 
 
 @dataclass(frozen=True, eq=False)
@@ -138,92 +153,59 @@ def decide_one(
     return Single(record, body, reasons)
 
 
-def decide_many(
-    bound: BoundCampaign, ids: Sequence[str], table: FeatureTable, values: Sequence[Any] | None
-) -> Decided:
-    """Decide for many customers at once (vectorised)."""
-    estimates, value_array = _estimate(bound, ids, table, values)
-    return _decide(bound, list(ids), _feature_rows(table), value_array, estimates,
-                   table.reasons, None)  # fmt: skip
+# -- many customers, in chunks ---------------------------------------------------------------
 
 
-def rank_many(
-    bound: BoundCampaign,
-    ids: Sequence[str],
-    table: FeatureTable,
-    values: Sequence[Any] | None,
-    *,
-    capacity: int | None,
-    budget: float | None,
-) -> Decided:
-    """Decide for candidates and cut the contact list at capacity and/or budget.
+@dataclass(frozen=True, eq=False)
+class Decided:
+    """One chunk of customers of one campaign, decided and ready to be logged.
 
-    Without either limit the campaign's default capacity applies. The decision ids of a
-    ranked list also depend on the list request (candidates, limits), since the cut
-    decides who is contacted; a retried identical request gets the same ids.
+    ``features`` holds each row's canonical feature JSON (what the log stores and the
+    decision id hashes); ``arm`` is the arm each decision's ``uplift`` refers to: the
+    chosen arm (also when held out), or the arm with the best expected value when no
+    contact was chosen.
     """
-    _refuse_duplicates(ids)
-    if capacity is None and budget is None:
-        capacity = bound.campaign.capacity
-    estimates, value_array = _estimate(bound, ids, table, values)
-    context = _rank_context(ids, capacity, budget)
-    return _decide(bound, list(ids), _feature_rows(table), value_array, estimates,
-                   table.reasons, (capacity, budget, context))  # fmt: skip
+
+    bound: BoundCampaign
+    ids: list[str]
+    values: FloatArray
+    estimates: Estimates
+    batch: DecisionBatch
+    input_reasons: list[list[str]]
+    features: list[str]
+
+    def __len__(self) -> int:
+        return len(self.ids)
+
+    @property
+    def arm(self) -> npt.NDArray[np.intp]:
+        batch = self.batch
+        best = np.argmax(batch.ev_per_arm, axis=1) + 1
+        return np.where(batch.chosen > 0, batch.chosen, best).astype(np.intp)
+
+    def reasons(self) -> list[list[str]]:
+        """Reason codes of each decision: the policy's, then the input flags."""
+        return [a + b for a, b in zip(self.batch.reasons, self.input_reasons, strict=True)]
 
 
-def _estimate(
-    bound: BoundCampaign, ids: Sequence[str], table: FeatureTable, values: Sequence[Any] | None
-) -> tuple[Estimates, npt.NDArray[np.float64]]:
-    if len(ids) != len(table):
-        raise DataError(f"{len(ids)} ids for {len(table)} feature rows; send one id per row.")
-    value_array = _values(bound, values if values is not None else [None] * len(ids))
-    if not len(ids):
-        k = len(bound.arm_columns)
-        empty = np.empty((0, k))
-        return Estimates(empty, np.empty(0), empty, empty), value_array
-    level = two_sided_level(bound.campaign.confidence)
-    return bound.model.estimate(table, level).take(bound.arm_columns), value_array
+@dataclass(frozen=True, eq=False)
+class Ranking:
+    """A ranked list over all chunks: the global cut and the list's id context."""
+
+    result: RankResult
+    context: str
 
 
-def _decide(
-    bound: BoundCampaign,
-    ids: list[str],
-    features: list[dict[str, Any]],
-    values: npt.NDArray[np.float64],
-    est: Estimates,
-    input_reasons: list[list[str]],
-    ranking: tuple[int | None, float | None, str] | None,
-) -> Decided:
-    campaign = bound.campaign
-    batch = decide(
-        est.tau, est.low, est.high, est.mu0, values, campaign.costs,
-        campaign.opted_out(ids), uniform_draws(campaign.salt, campaign.id, ids),
-        exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
-    )  # fmt: skip
-    costs = campaign.costs
-    ranked = None
-    if ranking is not None:
-        ranked = rank(batch, ids, capacity=ranking[0], budget=ranking[1], costs=costs)
-    model = (bound.bundle.name, bound.bundle.version)
-    value_list = values.tolist()
-    context = "score" if ranking is None else ranking[2]
-    ids_out = [
-        decision_id(campaign.id, i, campaign.hash, model, f, v, context=context)
-        for i, f, v in zip(ids, features, value_list, strict=True)
-    ]
-    arm = np.where(batch.chosen > 0, batch.chosen, np.argmax(batch.ev_per_arm, axis=1) + 1)
-    decided = Decided(
-        bound=bound, ids=ids, values=values, estimates=est, batch=batch,
-        input_reasons=input_reasons, decision_ids=ids_out, records=[],
-        arm=arm.astype(np.intp), ranked=ranked,
-    )  # fmt: skip
-    decided.records.extend(_records(decided, features))
-    return decided
-
-
-def _values(bound: BoundCampaign, values: Sequence[Any]) -> npt.NDArray[np.float64]:
+def resolve_values(
+    bound: BoundCampaign, values: Sequence[Any] | None, n: int, *, first_row: int = 0
+) -> FloatArray:
+    """Per-customer conversion values (None: the campaign's), refusing bad ones by row."""
     default = bound.campaign.value
-    out = np.empty(len(values))
+    if values is None:
+        return np.full(n, default)
+    if len(values) != n:
+        raise DataError(f"{len(values)} values for {n} customers; send one per customer.")
+    out = np.empty(n)
     problems = []
     for i, v in enumerate(values):
         if v is None:
@@ -232,15 +214,118 @@ def _values(bound: BoundCampaign, values: Sequence[Any]) -> npt.NDArray[np.float
             out[i] = v
         else:
             problems.append(
-                {"row": i, "feature": "value", "problem": f"must be a finite number > 0, "
-                 f"got {v!r}; send null to use the campaign's value ({default})"}
+                {"row": first_row + i, "feature": "value", "problem": f"must be a finite "
+                 f"number > 0, got {v!r}; send null to use the campaign's value ({default})"}
             )  # fmt: skip
     if problems:
         raise InvalidFeatures(problems)
     return out
 
 
-def _refuse_duplicates(ids: Sequence[str]) -> None:
+def decide_chunk(
+    bound: BoundCampaign,
+    ids: Sequence[str],
+    table: FeatureTable,
+    values: Sequence[Any] | FloatArray | None,
+    *,
+    first_row: int = 0,
+) -> Decided:
+    """Estimate and decide one chunk of validated customers (vectorised).
+
+    ``values`` may be raw per-customer values (checked; problems name the row counted
+    from ``first_row``) or an array from :func:`resolve_values`.
+    """
+    n = len(ids)
+    if n != len(table):
+        raise DataError(f"{n} ids for {len(table)} feature rows; send one id per row.")
+    if isinstance(values, np.ndarray):
+        value_array = np.asarray(values, dtype=float)
+    else:
+        value_array = resolve_values(bound, values, n, first_row=first_row)
+    campaign = bound.campaign
+    if n:
+        level = two_sided_level(campaign.confidence)
+        est = bound.model.estimate(table, level).take(bound.arm_columns)
+    else:
+        empty = np.empty((0, len(bound.arm_columns)))
+        est = Estimates(empty, np.empty(0), empty, empty)
+    ids = list(ids)
+    batch = decide(
+        est.tau, est.low, est.high, est.mu0, value_array, campaign.costs,
+        campaign.opted_out(ids), uniform_draws(campaign.salt, campaign.id, ids),
+        exploration=campaign.exploration, holdout=campaign.holdout, margin=campaign.dnc_margin,
+    )  # fmt: skip
+    return Decided(bound, ids, value_array, est, batch, table.reasons,
+                   feature_json(table.columns, n))  # fmt: skip
+
+
+def rank_chunks(
+    bound: BoundCampaign,
+    ids: Sequence[str],
+    batches: Sequence[DecisionBatch],
+    *,
+    capacity: int | None,
+    budget: float | None,
+) -> Ranking:
+    """Rank the decided chunks together and cut the list at capacity and/or budget.
+
+    ``ids`` are all candidates in chunk order; ``batches`` the chunks' decisions in the
+    same order. Without either limit the campaign's default capacity applies. The
+    decision ids of a ranked list also depend on the list request (candidates, limits),
+    since the cut decides who is contacted; a retried identical request gets the same ids.
+    """
+    refuse_duplicates(ids)
+    if capacity is None and budget is None:
+        capacity = bound.campaign.capacity
+    batch = _concatenate(batches, bound)
+    result = rank(batch, ids, capacity=capacity, budget=budget, costs=bound.campaign.costs)
+    return Ranking(result, _rank_context(ids, capacity, budget))
+
+
+def emit_columns(
+    decided: Decided, ranking: Ranking | None = None, offset: int = 0
+) -> DecisionColumns:
+    """The chunk's decisions in column form, with their ids, ready for the log.
+
+    With a :class:`Ranking`, the rows ``offset .. offset + len(decided)`` of its result
+    give the final actions and their probabilities given the cut (mode ``rank``).
+    """
+    bound, batch = decided.bound, decided.batch
+    campaign = bound.campaign
+    n = len(decided)
+    if ranking is None:
+        action, probs, held, mode, context = (
+            batch.action, batch.action_probs, batch.holdout, "score", "score"
+        )  # fmt: skip
+    else:
+        part = slice(offset, offset + n)
+        result = ranking.result
+        if result.action[part].shape != (n,):
+            raise DataError(
+                f"Rows {offset}..{offset + n} are outside the ranked list of "
+                f"{len(result.action)} candidates; pass the chunk's own offset."
+            )
+        action, probs, held = result.action[part], result.action_probs[part], result.holdout[part]
+        mode, context = "rank", ranking.context
+    ev = np.where(action > 0, batch.ev_per_arm[np.arange(n), np.maximum(action - 1, 0)], 0.0)
+    model = (bound.bundle.name, bound.bundle.version)
+    est = decided.estimates
+    return DecisionColumns(
+        campaign=campaign.id, model_name=model[0], model_version=model[1],
+        policy_hash=campaign.hash, arms=tuple(bound.labels[1:]), mode=mode,
+        created_at=utc_now(),
+        decision_id=decision_ids(campaign.id, decided.ids, campaign.hash, model,
+                                 decided.features, decided.values, context),
+        customer_id=decided.ids, features=decided.features, value=decided.values,
+        tau=est.tau, low=est.low, high=est.high, mu0=est.mu0,
+        action=np.asarray(action, dtype=np.intp), expected_value=ev,
+        explored=batch.explored, holdout=np.asarray(held, dtype=bool),
+        do_not_contact=batch.do_not_contact, action_probs=probs,
+    )  # fmt: skip
+
+
+def refuse_duplicates(ids: Sequence[str]) -> None:
+    """Refuse a candidate list that names a customer twice."""
     if len(set(ids)) != len(ids):
         seen: set[str] = set()
         repeated = sorted({i for i in ids if i in seen or seen.add(i)})  # type: ignore[func-returns-value]
@@ -254,61 +339,36 @@ def _rank_context(ids: Sequence[str], capacity: int | None, budget: float | None
     return "rank:" + digest.hexdigest()
 
 
-def _feature_rows(table: FeatureTable) -> list[dict[str, Any]]:
-    names = list(table.columns)
-    lists = []
-    for column in table.columns.values():
-        if column.dtype == object:
-            lists.append(column.tolist())
+def _concatenate(batches: Sequence[DecisionBatch], bound: BoundCampaign) -> DecisionBatch:
+    """One batch of the chunks' arrays (without the per-row reason lists, unused by rank)."""
+    if not batches:
+        k = len(bound.arm_columns)
+        empty = np.empty((0, k))
+        batches = [
+            decide(
+                empty,
+                empty,
+                empty,
+                np.empty(0),
+                1.0,
+                bound.campaign.costs,
+                np.zeros(0, dtype=bool),
+                (np.empty(0), np.empty(0), np.empty(0)),
+                exploration=0.0,
+                holdout=0.0,
+                margin=0.0,
+            )  # fmt: skip
+        ]
+    if len(batches) == 1:
+        return batches[0]
+    first = batches[0]
+    joined: dict[str, Any] = {}
+    for f in fields(DecisionBatch):
+        value = getattr(first, f.name)
+        if f.name == "reasons":
+            joined[f.name] = []
+        elif isinstance(value, np.ndarray):
+            joined[f.name] = np.concatenate([getattr(b, f.name) for b in batches])
         else:
-            lists.append(np.where(np.isnan(column), np.array(None), column).tolist())
-    return [dict(zip(names, row, strict=True)) for row in zip(*lists, strict=True)]
-
-
-def _records(decided: Decided, features: list[dict[str, Any]]) -> list[DecisionRecord]:
-    bound, batch, est, ranked = decided.bound, decided.batch, decided.estimates, decided.ranked
-    campaign = bound.campaign
-    labels = list(campaign.action_labels())
-    arms = labels[1:]
-    if ranked is None:
-        action, probs, held, mode = batch.action, batch.action_probs, batch.holdout, "score"
-        propensity = batch.propensity
-    else:
-        action, probs, held, mode = ranked.action, ranked.action_probs, ranked.holdout, "rank"
-        propensity = ranked.propensity
-    ev = np.column_stack([np.zeros(len(action)), batch.ev_per_arm])[np.arange(len(action)), action]
-    created = utc_now()
-    name, version = bound.bundle.name, bound.bundle.version
-    columns = zip(
-        decided.decision_ids, decided.ids, features, decided.values.tolist(),
-        est.tau.tolist(), est.low.tolist(), est.high.tolist(), est.mu0.tolist(),
-        action.tolist(), ev.tolist(), batch.explored.tolist(), held.tolist(),
-        batch.do_not_contact.tolist(), propensity.tolist(), probs.tolist(), strict=True,
-    )  # fmt: skip
-    return [
-        DecisionRecord(
-            decision_id=d_id,
-            created_at=created,
-            campaign=campaign.id,
-            customer_id=cid,
-            model_name=name,
-            model_version=version,
-            policy_hash=campaign.hash,
-            features=f,
-            value=v,
-            arms=arms,
-            tau=tau,
-            low=low,
-            high=high,
-            mu0=mu0,
-            action=labels[a],
-            expected_value=e,
-            explored=x,
-            holdout=h,
-            do_not_contact=dnc,
-            propensity=p,
-            action_probs=dict(zip(labels, pr, strict=True)),
-            mode=mode,
-        )  # fmt: skip
-        for (d_id, cid, f, v, tau, low, high, mu0, a, e, x, h, dnc, p, pr) in columns
-    ]
+            joined[f.name] = value
+    return DecisionBatch(**joined)

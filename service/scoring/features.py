@@ -54,6 +54,11 @@ class FeatureTable:
     def __len__(self) -> int:
         return len(self.reasons)
 
+    def slice(self, start: int, stop: int) -> FeatureTable:
+        """Rows ``start:stop`` (views of the same arrays, no copy)."""
+        columns = {name: column[start:stop] for name, column in self.columns.items()}
+        return FeatureTable(columns, self.reasons[start:stop])
+
     def frame(self) -> pd.DataFrame:
         """The table as a DataFrame in the model's column order."""
         return pd.DataFrame(self.columns, copy=False)

@@ -1,45 +1,51 @@
-"""Response bodies (JSON-ready dicts) built from decided customers.
+"""Response bodies (JSON-ready) built from decided chunks and their logged columns.
 
-Row form mirrors :class:`service.api.schemas.Decision`; column form returns one list
-per field, with NumPy arrays that orjson writes directly.
+Row form mirrors :class:`service.api.schemas.Decision`. Column form keeps one array per
+field: :func:`column_part` takes what a chunk contributes, :func:`column_body` joins the
+parts, and orjson writes NumPy arrays directly. A ranked list is built from the global
+:class:`~service.scoring.engine.Ranking` and each row's decision id.
 """
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
+import numpy.typing as npt
 
-from service.scoring.engine import Decided
+from service.decisions import DecisionColumns
+from service.scoring.catalog import BoundCampaign
+from service.scoring.engine import Decided, Ranking
 
-__all__ = ["decision_columns", "decision_rows", "ranked_list"]
+__all__ = ["column_body", "column_part", "decision_rows", "ranked_list"]
+
+_PER_ARM = ("uplift", "uplift_low", "uplift_high", "expected_value", "do_not_contact")
 
 
-def _reasons(decided: Decided, i: int) -> list[str]:
-    return decided.batch.reasons[i] + decided.input_reasons[i]
-
-
-def decision_rows(decided: Decided) -> list[dict[str, Any]]:
-    """One JSON-ready decision per customer, in request order."""
+def decision_rows(decided: Decided, logged: DecisionColumns) -> list[dict[str, Any]]:
+    """One JSON-ready decision per customer of the chunk, in request order."""
     bound, batch, est = decided.bound, decided.batch, decided.estimates
     campaign = bound.campaign
     labels = campaign.action_labels()
     costs = campaign.costs.tolist()
     model = bound.model_ref
     rows = np.arange(len(decided))
-    k = decided.arm - 1
+    arm = decided.arm
+    k = arm - 1
     outcome_arms = (est.mu0[:, None] + est.tau).tolist()
     per = zip(
-        decided.decision_ids, decided.ids, batch.action.tolist(), decided.arm.tolist(),
+        logged.decision_id, decided.ids, batch.action.tolist(), arm.tolist(),
         est.tau[rows, k].tolist(), est.low[rows, k].tolist(), est.high[rows, k].tolist(),
         est.mu0.tolist(), (est.mu0 + est.tau[rows, k]).tolist(), batch.expected_value.tolist(),
         batch.do_not_contact.tolist(), batch.explored.tolist(), batch.holdout.tolist(),
-        batch.propensity.tolist(), est.tau.tolist(), est.low.tolist(), est.high.tolist(),
-        batch.ev_per_arm.tolist(), batch.dnc_per_arm.tolist(), outcome_arms, strict=True,
+        batch.propensity.tolist(), decided.reasons(), est.tau.tolist(), est.low.tolist(),
+        est.high.tolist(), batch.ev_per_arm.tolist(), batch.dnc_per_arm.tolist(), outcome_arms,
+        strict=True,
     )  # fmt: skip
     out = []
-    for i, (d_id, cid, a, arm, u, lo, hi, mu0, with_arm, ev, dnc, x, h, p, taus, lows, highs,
-            evs, dncs, outs) in enumerate(per):  # fmt: skip
+    for (d_id, cid, a, arm_i, u, lo, hi, mu0, with_arm, ev, dnc, x, h, p, reasons, taus, lows,
+         highs, evs, dncs, outs) in per:  # fmt: skip
         out.append(
             {
                 "decision_id": d_id,
@@ -48,7 +54,7 @@ def decision_rows(decided: Decided) -> list[dict[str, Any]]:
                 "model": model,
                 "policy_hash": campaign.hash,
                 "action": labels[a],
-                "arm": labels[arm],
+                "arm": labels[arm_i],
                 "uplift": u,
                 "uplift_low": lo,
                 "uplift_high": hi,
@@ -60,7 +66,7 @@ def decision_rows(decided: Decided) -> list[dict[str, Any]]:
                 "explored": x,
                 "holdout": h,
                 "propensity": p,
-                "reasons": _reasons(decided, i),
+                "reasons": reasons,
                 "arms": [
                     {
                         "arm": labels[j + 1],
@@ -79,18 +85,18 @@ def decision_rows(decided: Decided) -> list[dict[str, Any]]:
     return out
 
 
-def decision_columns(decided: Decided) -> dict[str, Any]:
-    """Decisions as columns (one list per field), for column-form batches."""
-    bound, batch, est = decided.bound, decided.batch, decided.estimates
-    campaign = bound.campaign
-    labels = np.array(campaign.action_labels(), dtype=object)
+def column_part(decided: Decided, logged: DecisionColumns) -> dict[str, Any]:
+    """What one chunk contributes to a column-form answer (arrays and lists per field)."""
+    batch, est = decided.batch, decided.estimates
+    labels = np.array(decided.bound.campaign.action_labels(), dtype=object)
     rows = np.arange(len(decided))
-    k = decided.arm - 1
-    columns = {
-        "decision_id": decided.decision_ids,
+    arm = decided.arm
+    k = arm - 1
+    part: dict[str, Any] = {
+        "decision_id": list(logged.decision_id),
         "customer_id": decided.ids,
         "action": labels[batch.action].tolist(),
-        "arm": labels[decided.arm].tolist(),
+        "arm": labels[arm].tolist(),
         "uplift": est.tau[rows, k],
         "uplift_low": est.low[rows, k],
         "uplift_high": est.high[rows, k],
@@ -101,60 +107,84 @@ def decision_columns(decided: Decided) -> dict[str, Any]:
         "explored": batch.explored,
         "holdout": batch.holdout,
         "propensity": batch.propensity,
-        "reasons": [_reasons(decided, i) for i in range(len(decided))],
+        "reasons": decided.reasons(),
     }
-    arms = {
-        str(labels[j + 1]): {
-            "uplift": np.ascontiguousarray(est.tau[:, j]),
-            "uplift_low": np.ascontiguousarray(est.low[:, j]),
-            "uplift_high": np.ascontiguousarray(est.high[:, j]),
-            "expected_value": np.ascontiguousarray(batch.ev_per_arm[:, j]),
-            "do_not_contact": np.ascontiguousarray(batch.dnc_per_arm[:, j]),
-        }
-        for j in range(len(labels) - 1)
-    }
+    per_arm = (est.tau, est.low, est.high, batch.ev_per_arm, batch.dnc_per_arm)
+    for j, label in enumerate(labels[1:].tolist()):
+        for name, values in zip(_PER_ARM, per_arm, strict=True):
+            part[f"{label}\0{name}"] = values[:, j]
+    return part
+
+
+def column_body(bound: BoundCampaign, parts: Sequence[dict[str, Any]]) -> dict[str, Any]:
+    """The column-form answer from the parts of every chunk (at least one), in order."""
+    campaign = bound.campaign
+    joined = {name: _join([p[name] for p in parts]) for name in parts[0]}
+    columns = {name: value for name, value in joined.items() if "\0" not in name}
+    arms: dict[str, dict[str, Any]] = {}
+    for label in campaign.action_labels()[1:]:
+        arms[label] = {
+            name: joined.get(f"{label}\0{name}", np.empty(0)) for name in _PER_ARM
+        }  # fmt: skip
+    count = len(columns.get("customer_id", ()))
     return {
         "campaign": campaign.id,
         "model": bound.model_ref,
         "policy_hash": campaign.hash,
         "confidence": campaign.confidence,
-        "count": len(decided),
-        "columns": {k: _contiguous(v) for k, v in columns.items()},
+        "count": count,
+        "columns": columns,
         "arms": arms,
     }
 
 
-def ranked_list(decided: Decided) -> dict[str, Any]:
-    """The ordered contact list and the excluded candidates, JSON-ready."""
-    ranked = decided.ranked
-    assert ranked is not None, "ranked_list needs the result of rank_many"
-    bound, batch, est = decided.bound, decided.batch, decided.estimates
+def ranked_list(
+    bound: BoundCampaign,
+    ranking: Ranking,
+    ids: Sequence[str],
+    decision_ids: Sequence[str],
+    uplift: npt.NDArray[np.float64],
+) -> dict[str, Any]:
+    """The ordered contact list and the excluded candidates, JSON-ready.
+
+    ``uplift`` holds, per candidate, the uplift of the arm the list names (any value
+    for rows not listed).
+    """
+    ranked = ranking.result
     campaign = bound.campaign
     labels = campaign.action_labels()
     costs = campaign.costs
-    contacts = []
-    for place, i in enumerate(ranked.order.tolist(), start=1):
-        a = int(ranked.arm[i])
-        contacts.append(
-            {
-                "rank": place,
-                "customer_id": decided.ids[i],
-                "decision_id": decided.decision_ids[i],
-                "arm": labels[a],
-                "contact": not bool(ranked.holdout[i]),
-                "expected_value": float(ranked.expected_value[i]),
-                "uplift": float(est.tau[i, a - 1]),
-                "cost": float(costs[a - 1]),
-                "propensity": float(ranked.propensity[i]),
-                "explored": bool(batch.explored[i]),
-                "holdout": bool(ranked.holdout[i]),
-            }  # fmt: skip
-        )
+    order = ranked.order
+    arm = ranked.arm[order]
+    held = ranked.holdout[order]
+    per = zip(
+        range(1, len(order) + 1), [ids[i] for i in order.tolist()],
+        [decision_ids[i] for i in order.tolist()], arm.tolist(), (~held).tolist(),
+        ranked.expected_value[order].tolist(), uplift[order].tolist(),
+        costs[arm - 1].tolist(), ranked.propensity[order].tolist(),
+        ranked.explored[order].tolist(), held.tolist(), strict=True,
+    )  # fmt: skip
+    contacts = [
+        {
+            "rank": place,
+            "customer_id": cid,
+            "decision_id": d_id,
+            "arm": labels[a],
+            "contact": contact,
+            "expected_value": ev,
+            "uplift": u,
+            "cost": c,
+            "propensity": p,
+            "explored": x,
+            "holdout": h,
+        }  # fmt: skip
+        for place, cid, d_id, a, contact, ev, u, c, p, x, h in per
+    ]
     excluded = [
-        {"customer_id": decided.ids[i], "decision_id": decided.decision_ids[i], "reason": r}
+        {"customer_id": ids[i], "decision_id": decision_ids[i], "reason": r}
         for i, r in zip(ranked.excluded.tolist(), ranked.excluded_reason, strict=True)
     ]
-    listed_ev = ranked.expected_value[ranked.order][~ranked.holdout[ranked.order]]
+    listed_ev = ranked.expected_value[order][~held]
     return {
         "campaign": campaign.id,
         "model": bound.model_ref,
@@ -164,7 +194,7 @@ def ranked_list(decided: Decided) -> dict[str, Any]:
         "contacts": contacts,
         "excluded": excluded,
         "totals": {
-            "candidates": len(decided),
+            "candidates": len(ids),
             "contacts": int((ranked.listed & ~ranked.holdout).sum()),
             "held_out": int(ranked.holdout.sum()),
             "excluded": len(excluded),
@@ -174,5 +204,7 @@ def ranked_list(decided: Decided) -> dict[str, Any]:
     }
 
 
-def _contiguous(value: Any) -> Any:
-    return np.ascontiguousarray(value) if isinstance(value, np.ndarray) else value
+def _join(values: list[Any]) -> Any:
+    if isinstance(values[0], np.ndarray):
+        return np.ascontiguousarray(np.concatenate(values))
+    return [v for part in values for v in part]

@@ -12,7 +12,7 @@ import numpy as np
 from service.decisions import DecisionLog
 from service.decisions.outcomes import Outcome, OutcomeStore
 from service.registry import ModelRegistry
-from service.scoring import Catalog, bind_campaigns, decide_many
+from service.scoring import Catalog, bind_campaigns, decide_chunk, emit_columns
 from service.simulation import SimulatedCampaign, simulate
 from service.training import train_model
 
@@ -105,13 +105,15 @@ def run_day_in_process(
     ids, columns = customers(sim, day)
     bound = catalog.get(CAMPAIGN)
     table = bound.schema.table_from_columns(columns, n)
-    decided = decide_many(bound, ids, table, None)
-    log.append_sync(decided.records)
+    decided = decide_chunk(bound, ids, table, None)
+    logged = emit_columns(decided)
+    log.append_columns_sync([logged])
     batch = decided.batch
     y = draw_outcomes(sim, batch.action, seed=200 + day)
     if store is not None:
-        store.record([Outcome(d, float(v)) for d, v in zip(decided.decision_ids, y, strict=True)])
-    return Day(sim, ids, decided.decision_ids, batch.action, batch.chosen, batch.action_probs, y)
+        store.record([Outcome(d, float(v)) for d, v in zip(logged.decision_id, y, strict=True)])
+    d_ids = list(logged.decision_id)
+    return Day(sim, ids, d_ids, batch.action, batch.chosen, batch.action_probs, y)
 
 
 def bind(models_dir: Path, campaigns_file: Path) -> Catalog:

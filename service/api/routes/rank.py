@@ -2,17 +2,16 @@
 
 from __future__ import annotations
 
-import asyncio
-
 from fastapi import APIRouter
 
-from service.api.candidates import candidates, check_batch_size
+from service.api.candidates import check_batch_size
 from service.api.deps import ScorerKey, StateDep
 from service.api.responses import OrjsonResponse
-from service.api.routes.score import ERRORS, THREAD_ROWS, count_decisions
+from service.api.routes.score import ERRORS, count_columns, validated
 from service.api.routing import ScoringRoute
 from service.api.schemas import RankedList, RankRequest
-from service.scoring import Decided, rank_many, ranked_list
+from service.decisions import DecisionColumns
+from service.scoring import rank_batch, ranked_list
 
 router = APIRouter(prefix="/v1/rank", tags=["scoring"], route_class=ScoringRoute)
 
@@ -22,12 +21,14 @@ async def rank(body: RankRequest, state: StateDep, _: ScorerKey) -> OrjsonRespon
     """Order the candidates by expected value and cut the list; every decision is logged."""
     n = check_batch_size(body, state.settings.max_batch)
     bound = state.catalog.get(body.campaign)
+    ids, table, values = await validated(body, bound, n)
+    metrics = state.metrics
 
-    def work() -> Decided:
-        ids, table, values = candidates(body, bound.schema)
-        return rank_many(bound, ids, table, values, capacity=body.capacity, budget=body.budget)
+    def counted(logged: DecisionColumns) -> None:
+        count_columns(metrics, logged)
 
-    decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await state.committer.commit(decided.records)
-    count_decisions(state.metrics, bound.campaign.id, decided.records)
-    return OrjsonResponse(ranked_list(decided))
+    done = await rank_batch(
+        state.committer, bound, ids, table, values,
+        capacity=body.capacity, budget=body.budget, on_commit=counted,
+    )  # fmt: skip
+    return OrjsonResponse(ranked_list(bound, done.ranking, ids, done.decision_ids, done.uplift))

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import asyncio
 
+import numpy as np
+import numpy.typing as npt
 from fastapi import APIRouter
 
 from service.api.candidates import candidates, check_batch_size
@@ -19,13 +21,19 @@ from service.api.schemas import (
     ErrorBody,
     ScoreRequest,
 )
+from service.decisions import DecisionColumns as LoggedColumns
 from service.decisions import DecisionRecord
 from service.scoring import (
-    Decided,
-    decide_many,
+    BoundCampaign,
+    FeatureTable,
+    column_body,
+    column_part,
     decide_one,
-    decision_columns,
     decision_rows,
+    resolve_values,
+)
+from service.scoring import (
+    score_batch as score_chunks,
 )
 
 router = APIRouter(prefix="/v1/score", tags=["scoring"], route_class=ScoringRoute)
@@ -53,17 +61,19 @@ async def score_batch(body: BatchScoreRequest, state: StateDep, _: ScorerKey) ->
     """Decide for many customers; column-form requests get column-form answers."""
     n = check_batch_size(body, state.settings.max_batch)
     bound = state.catalog.get(body.campaign)
+    ids, table, values = await validated(body, bound, n)
+    metrics = state.metrics
 
-    def work() -> Decided:
-        ids, table, values = candidates(body, bound.schema)
-        return decide_many(bound, ids, table, values)
+    def counted(logged: LoggedColumns) -> None:
+        count_columns(metrics, logged)
 
-    decided = await asyncio.to_thread(work) if n > THREAD_ROWS else work()
-    await state.committer.commit(decided.records)
-    count_decisions(state.metrics, bound.campaign.id, decided.records)
     if body.columns is not None:
-        return OrjsonResponse(decision_columns(decided))
-    rows = decision_rows(decided)
+        parts = await score_chunks(state.committer, bound, ids, table, values, column_part,
+                                   on_commit=counted)  # fmt: skip
+        return OrjsonResponse(column_body(bound, parts))
+    chunks = await score_chunks(state.committer, bound, ids, table, values, decision_rows,
+                                on_commit=counted)  # fmt: skip
+    rows = [row for chunk in chunks for row in chunk]
     return OrjsonResponse(
         {
             "campaign": bound.campaign.id,
@@ -72,6 +82,19 @@ async def score_batch(body: BatchScoreRequest, state: StateDep, _: ScorerKey) ->
             "decisions": rows,
         }  # fmt: skip
     )
+
+
+Validated = tuple[list[str], FeatureTable, npt.NDArray[np.float64]]
+
+
+async def validated(body: BatchScoreRequest, bound: BoundCampaign, n: int) -> Validated:
+    """Ids, validated features and values of the whole batch (nothing is logged yet)."""
+
+    def work() -> Validated:
+        ids, table, given = candidates(body, bound.schema)
+        return ids, table, resolve_values(bound, given, len(ids))
+
+    return await asyncio.to_thread(work) if n > THREAD_ROWS else work()
 
 
 def count_decisions(metrics: Metrics, campaign: str, records: list[DecisionRecord]) -> None:
@@ -83,4 +106,17 @@ def count_decisions(metrics: Metrics, campaign: str, records: list[DecisionRecor
             [r.action for r in records],
             explored=sum(r.explored for r in records),
             held_out=sum(r.holdout for r in records),
+        )
+
+
+def count_columns(metrics: Metrics, logged: LoggedColumns) -> None:
+    """:func:`count_decisions` for a chunk logged in column form."""
+    if len(logged):
+        labels = logged.labels
+        metrics.record_decisions(
+            logged.campaign,
+            logged.mode,
+            [labels[a] for a in logged.action.tolist()],
+            explored=int(logged.explored.sum()),
+            held_out=int(logged.holdout.sum()),
         )
