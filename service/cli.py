@@ -30,6 +30,7 @@ COMMANDS: tuple[str, ...] = (
     "replay",
     "export",
     "drift",
+    "score",
 )
 """Modules of ``service.commands`` that provide sub-commands, in help order."""
 

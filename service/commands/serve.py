@@ -21,9 +21,7 @@ Serve contact decisions over HTTP: POST /v1/score, /v1/score/batch and /v1/rank,
 /docs, /healthz, /readyz and /metrics. Settings come from UPSHOT_* environment variables
 (UPSHOT_MODELS_DIR, UPSHOT_CAMPAIGNS_FILE, UPSHOT_DECISION_LOG, UPSHOT_HOST, UPSHOT_PORT,
 UPSHOT_API_KEYS, ...); the options below override them. Without API keys the service
-only binds to loopback. Several processes (--workers, or replicas on other machines)
-may share one decision log and registry: each sees the others' promotions and campaign
-reloads within UPSHOT_SYNC_SECONDS (default 2).
+only binds to loopback.
 """
 
 _DEMO = """\
@@ -42,12 +40,6 @@ def register(subparsers: Any) -> None:
     _server_options(serve)
     serve.add_argument("--host", help="interface to bind (env UPSHOT_HOST; default 127.0.0.1)")
     serve.add_argument("--port", type=int, help="port (env UPSHOT_PORT; default 8000)")
-    serve.add_argument(
-        "--workers",
-        type=int,
-        help="worker processes sharing the port and the decision log (env UPSHOT_WORKERS; "
-        "default 1)",
-    )
     serve.set_defaults(handler=_serve)
 
     demo = subparsers.add_parser(
@@ -78,7 +70,6 @@ def _overrides(args: argparse.Namespace) -> dict[str, Any]:
         "decision_log": args.decision_log,
         "host": getattr(args, "host", None),
         "port": getattr(args, "port", None),
-        "workers": getattr(args, "workers", None),
     }
     return {key: value for key, value in given.items() if value is not None}
 
@@ -86,40 +77,21 @@ def _overrides(args: argparse.Namespace) -> dict[str, Any]:
 def _serve(args: argparse.Namespace) -> int:
     from service.config import load_settings
 
-    overrides = _overrides(args)
-    settings = load_settings(**overrides)
-    if settings.workers == 1:
-        return _run(settings, access_log=args.access_log)
-    # Worker processes read their settings from the environment: pass the options on.
-    for key, value in overrides.items():
-        os.environ[f"UPSHOT_{key.upper()}"] = str(value)
-    return _run(settings, access_log=args.access_log, factory=f"{__name__}:worker_app")
+    return _run(load_settings(**_overrides(args)), access_log=args.access_log)
 
 
-def worker_app() -> Any:
-    """The app of one ``upshot serve --workers N`` process, configured from ``UPSHOT_*``."""
-    from service.api.app import create_app
-    from service.api.logs import configure_logging
-    from service.config import load_settings
-
-    settings = load_settings()
-    configure_logging(settings.log_level)
-    return create_app(settings)
-
-
-def _run(settings: Any, *, access_log: bool, banner: str = "", factory: str = "") -> int:
+def _run(settings: Any, *, access_log: bool, banner: str = "") -> int:
     import uvicorn
 
     from service.api.app import create_app
     from service.api.logs import configure_logging
 
     configure_logging(settings.log_level)
+    app = create_app(settings)
     if banner:
         print(banner, flush=True)
     uvicorn.run(
-        factory or create_app(settings),
-        factory=bool(factory),
-        workers=settings.workers if factory else None,
+        app,
         host=settings.host,
         port=settings.port,
         log_config=None,
