@@ -8,7 +8,7 @@ import os
 from pathlib import Path
 from typing import Any
 
-__all__ = ["register"]
+__all__ = ["register", "worker_app"]
 
 logger = logging.getLogger(__name__)
 
@@ -40,6 +40,12 @@ def register(subparsers: Any) -> None:
     _server_options(serve)
     serve.add_argument("--host", help="interface to bind (env UPSHOT_HOST; default 127.0.0.1)")
     serve.add_argument("--port", type=int, help="port (env UPSHOT_PORT; default 8000)")
+    serve.add_argument(
+        "--workers",
+        type=_positive,
+        default=1,
+        help="worker processes sharing the port and the decision log (default 1)",
+    )
     serve.set_defaults(handler=_serve)
 
     demo = subparsers.add_parser(
@@ -74,10 +80,21 @@ def _overrides(args: argparse.Namespace) -> dict[str, Any]:
     return {key: value for key, value in given.items() if value is not None}
 
 
+def _positive(text: str) -> int:
+    value = int(text)
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number >= 1; give e.g. 2.")
+    return value
+
+
 def _serve(args: argparse.Namespace) -> int:
     from service.config import load_settings
 
-    return _run(load_settings(**_overrides(args)), access_log=args.access_log)
+    overrides = _overrides(args)
+    settings = load_settings(**overrides)
+    if args.workers > 1:
+        return _run_workers(settings, overrides, args.workers, access_log=args.access_log)
+    return _run(settings, access_log=args.access_log)
 
 
 def _run(settings: Any, *, access_log: bool, banner: str = "") -> int:
@@ -91,15 +108,47 @@ def _run(settings: Any, *, access_log: bool, banner: str = "") -> int:
     if banner:
         print(banner, flush=True)
     uvicorn.run(
-        app,
-        host=settings.host,
-        port=settings.port,
-        log_config=None,
-        access_log=access_log,
-        log_level=settings.log_level,
-        timeout_keep_alive=30,
-    )
+        app, host=settings.host, port=settings.port, log_config=None,
+        access_log=access_log, log_level=settings.log_level, timeout_keep_alive=30,
+    )  # fmt: skip
     return 0
+
+
+def _run_workers(
+    settings: Any, overrides: dict[str, Any], workers: int, *, access_log: bool
+) -> int:
+    """Serve from ``workers`` processes on one port.
+
+    Each worker builds its own app from the environment (the options are passed down as
+    ``UPSHOT_*`` variables) and opens its own writer on the decision log; SQLite's write
+    lock lets one transaction commit at a time, and a writer that finds it taken waits
+    (busy timeout) instead of failing. Decision ids make a retry that lands on another
+    worker a no-op, so nothing is lost or logged twice.
+    """
+    import uvicorn
+
+    from service.api.logs import configure_logging
+
+    configure_logging(settings.log_level)
+    for key, value in overrides.items():
+        os.environ[f"UPSHOT_{key.upper()}"] = str(value)
+    uvicorn.run(
+        f"{__name__}:worker_app", factory=True, workers=workers, host=settings.host,
+        port=settings.port, log_config=None, access_log=access_log,
+        log_level=settings.log_level, timeout_keep_alive=30,
+    )  # fmt: skip
+    return 0
+
+
+def worker_app() -> Any:
+    """The app of one worker process, configured from ``UPSHOT_*`` (uvicorn factory)."""
+    from service.api.app import create_app
+    from service.api.logs import configure_logging
+    from service.config import load_settings
+
+    settings = load_settings()
+    configure_logging(settings.log_level)
+    return create_app(settings)
 
 
 def _demo(args: argparse.Namespace) -> int:

@@ -10,6 +10,7 @@ a :class:`~service.decisions.record.DecisionRecord` per decision.
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -19,7 +20,6 @@ import numpy.typing as npt
 import orjson
 
 from service.decisions.record import (
-    _JSON,
     _NO_CONTACT,
     _PROB_SLACK,
     MODES,
@@ -136,25 +136,25 @@ class DecisionColumns:
                 raise self._fail(0, name, f"must hold {n} flags")
 
     def rows(self) -> Iterator[tuple[Any, ...]]:
-        """Database rows in :data:`~service.decisions.record.COLUMNS` order (unchecked)."""
-        created = _timestamp_of(self)
-        arms = _json(list(self.arms))
-        labels = self.labels
-        probs = self.action_probs
-        propensity = self.propensity.tolist()
-        columns = zip(
-            self.decision_id, self.customer_id, self.features, self.value.tolist(),
-            _json_rows(self.tau), _json_rows(self.low), _json_rows(self.high),
-            self.mu0.tolist(), self.action.tolist(), self.expected_value.tolist(),
-            self.explored.tolist(), self.holdout.tolist(), self.do_not_contact.tolist(),
-            propensity, _probability_rows(labels, probs), strict=True,
+        """Database rows in :data:`~service.decisions.record.COLUMNS` order (unchecked).
+
+        Built column by column (batch-wide fields repeated, JSON text cut from one orjson
+        call per column), so no Python code runs per decision.
+        """
+        n = len(self)
+        same = itertools.repeat
+        labels = np.array(self.labels, dtype=object)
+        return zip(
+            self.decision_id, same(_timestamp_of(self), n), same(self.campaign, n),
+            self.customer_id, same(self.model_name, n), same(self.model_version, n),
+            same(self.policy_hash, n), self.features, self.value.tolist(),
+            same(_json(list(self.arms)), n), _json_rows(self.tau), _json_rows(self.low),
+            _json_rows(self.high), self.mu0.tolist(), labels[self.action].tolist(),
+            self.expected_value.tolist(), _flags(self.explored), _flags(self.holdout),
+            _flags(self.do_not_contact), self.propensity.tolist(),
+            _probability_rows(self.labels, self.action_probs), same(self.mode, n),
+            strict=True,
         )  # fmt: skip
-        for d_id, c_id, feats, value, tau, low, high, mu0, a, ev, x, h, dnc, p, pr in columns:
-            yield (
-                d_id, created, self.campaign, c_id, self.model_name, self.model_version,
-                self.policy_hash, feats, value, arms, tau, low, high, mu0, labels[a], ev,
-                int(x), int(h), int(dnc), p, pr, self.mode,
-            )  # fmt: skip
 
     def records(self) -> list[DecisionRecord]:
         """The same decisions as records (for tests and single lookups; slow for big batches)."""
@@ -272,11 +272,31 @@ def _first(mask: npt.NDArray[np.bool_]) -> int:
 
 
 def _json_rows(values: FloatArray) -> list[str]:
-    return [orjson.dumps(row, option=_JSON).decode() for row in values.tolist()]
+    """``orjson.dumps(row)`` of every row of a 2-D array (what ``_json`` writes)."""
+    return _templated("[" + ",".join(["%s"] * values.shape[1]) + "]", values)
 
 
 def _probability_rows(labels: tuple[str, ...], probs: FloatArray) -> list[str]:
-    return [
-        orjson.dumps(dict(zip(labels, row, strict=True)), option=_JSON).decode()
-        for row in probs.tolist()
-    ]
+    """``_json(dict(zip(labels, row)))`` of every row: keys sorted, as orjson sorts them."""
+    order = sorted(range(len(labels)), key=labels.__getitem__)
+    keys = [orjson.dumps(labels[j]).decode().replace("%", "%%") for j in order]
+    template = "{" + ",".join(f"{key}:%s" for key in keys) + "}"
+    return _templated(template, np.asarray(probs)[:, order])
+
+
+def _templated(template: str, values: FloatArray) -> list[str]:
+    # orjson writes each float as it would inside any list (NaN as null); numbers hold no
+    # comma, so one call for the whole array cut at the commas gives every number's text.
+    n, k = values.shape
+    if not n:
+        return []
+    if not k:
+        return [template] * n
+    text = orjson.dumps(np.asarray(values, dtype=float).ravel().tolist())[1:-1].decode()
+    numbers = text.split(",")
+    return [template % row for row in zip(*(numbers[j::k] for j in range(k)), strict=True)]
+
+
+def _flags(values: BoolArray) -> list[int]:
+    flags: list[int] = np.asarray(values, dtype=np.int64).tolist()
+    return flags

@@ -12,7 +12,7 @@ share this path.
 
 from __future__ import annotations
 
-from service.scoring.batches import RankedChunks, rank_batch, score_batch
+from service.scoring.batches import RankedChunks, rank_batch, run_work, score_batch
 from service.scoring.catalog import (
     BoundCampaign,
     Catalog,
@@ -65,6 +65,7 @@ __all__ = [
     "readiness_problems",
     "refuse_duplicates",
     "resolve_values",
+    "run_work",
     "score_batch",
     "servable",
 ]

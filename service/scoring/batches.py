@@ -23,6 +23,7 @@ import numpy.typing as npt
 from service.decisions import DecisionColumns
 from service.scoring import engine
 from service.scoring.catalog import BoundCampaign
+from service.scoring.collector import paused
 from service.scoring.committer import Committer
 from service.scoring.engine import (
     Decided,
@@ -34,7 +35,7 @@ from service.scoring.engine import (
 )
 from service.scoring.features import FeatureTable
 
-__all__ = ["RankedChunks", "rank_batch", "score_batch"]
+__all__ = ["RankedChunks", "rank_batch", "run_work", "score_batch"]
 
 T = TypeVar("T")
 # Below this many customers, moving the work to a thread costs more than it frees.
@@ -54,21 +55,22 @@ async def score_batch(
 ) -> list[T]:
     """Decide, log and view every chunk (mode ``score``); one ``view`` result per chunk.
 
-    ``chunk_rows`` defaults to :data:`~service.scoring.engine.CHUNK_ROWS`.
+    ``chunk_rows`` defaults to :data:`~service.scoring.engine.CHUNK_ROWS`. A chunk is
+    decided while the previous one commits.
     """
     out: list[T] = []
-    for start, stop in _spans(len(ids), chunk_rows):
+    async with _Pipeline(committer, on_commit) as pipeline:
+        for start, stop in _spans(len(ids), chunk_rows):
 
-        def work(start: int = start, stop: int = stop) -> tuple[Decided, DecisionColumns]:
-            decided = decide_chunk(bound, ids[start:stop], table.slice(start, stop),
-                                   values[start:stop])  # fmt: skip
-            return decided, emit_columns(decided)
+            def work(start: int = start, stop: int = stop) -> tuple[DecisionColumns, T]:
+                decided = decide_chunk(bound, ids[start:stop], table.slice(start, stop),
+                                       values[start:stop])  # fmt: skip
+                logged = emit_columns(decided)
+                return logged, view(decided, logged)
 
-        decided, logged = await _run(work, stop - start)
-        await committer.commit_columns(logged)
-        if on_commit is not None:
-            on_commit(logged)
-        out.append(view(decided, logged))
+            logged, shown = await run_work(work, stop - start)
+            await pipeline.commit(logged)
+            out.append(shown)
     return out
 
 
@@ -104,21 +106,21 @@ async def rank_batch(
                               capacity=capacity, budget=budget)  # fmt: skip
         return chunks, ranking
 
-    chunks, ranking = await _run(decide_all, len(ids))
+    chunks, ranking = await run_work(decide_all, len(ids))
     decision_ids: list[str] = []
     uplift = np.empty(len(ids))
-    for chunk, (start, stop) in zip(chunks, spans, strict=True):
+    async with _Pipeline(committer, on_commit) as pipeline:
+        for chunk, (start, stop) in zip(chunks, spans, strict=True):
 
-        def work(chunk: Decided = chunk, start: int = start) -> DecisionColumns:
-            return emit_columns(chunk, ranking, start)
+            def work(chunk: Decided = chunk, start: int = start) -> DecisionColumns:
+                return emit_columns(chunk, ranking, start)
 
-        logged = await _run(work, len(chunk))
-        await committer.commit_columns(logged)
-        if on_commit is not None:
-            on_commit(logged)
-        decision_ids.extend(logged.decision_id)
-        arm = ranking.result.arm[start:stop]
-        uplift[start:stop] = chunk.estimates.tau[np.arange(len(chunk)), np.maximum(arm - 1, 0)]
+            logged = await run_work(work, len(chunk))
+            await pipeline.commit(logged)
+            decision_ids.extend(logged.decision_id)
+            arm = ranking.result.arm[start:stop]
+            rows = np.arange(len(chunk))
+            uplift[start:stop] = chunk.estimates.tau[rows, np.maximum(arm - 1, 0)]
     return RankedChunks(ranking, decision_ids, uplift)
 
 
@@ -128,5 +130,49 @@ def _spans(n: int, size: int | None) -> list[tuple[int, int]]:
     return [(start, min(start + size, n)) for start in range(0, n, size)] or [(0, 0)]
 
 
-async def _run(work: Callable[[], T], rows: int) -> T:
-    return await asyncio.to_thread(work) if rows > _THREAD_ROWS else work()
+class _Pipeline:
+    """Commit chunk i while chunk i + 1 is being decided; at most one commit in flight.
+
+    Leaving the block waits for the last commit; on an error, it still waits for the
+    commit in flight (so no commit outlives the request) and raises the first error.
+    """
+
+    def __init__(
+        self, committer: Committer, on_commit: Callable[[DecisionColumns], None] | None
+    ) -> None:
+        self._committer = committer
+        self._on_commit = on_commit
+        self._pending: tuple[asyncio.Task[None], DecisionColumns] | None = None
+
+    async def commit(self, logged: DecisionColumns) -> None:
+        await self._settle()
+        task = asyncio.ensure_future(self._committer.commit_columns(logged))
+        self._pending = (task, logged)
+
+    async def _settle(self) -> None:
+        if self._pending is None:
+            return
+        (task, logged), self._pending = self._pending, None
+        await task
+        if self._on_commit is not None:
+            self._on_commit(logged)
+
+    async def __aenter__(self) -> _Pipeline:
+        return self
+
+    async def __aexit__(self, exc_type: object, exc: object, tb: object) -> None:
+        if exc is None:
+            await self._settle()
+        elif self._pending is not None:
+            task = self._pending[0]
+            self._pending = None
+            await asyncio.wait([task])
+            if not task.cancelled():
+                task.exception()  # retrieved: the request's own error is raised
+
+
+async def run_work(work: Callable[[], T], rows: int) -> T:
+    """Run CPU work, in a thread for large chunks, with the cyclic collector paused."""
+    if rows > _THREAD_ROWS:
+        return await asyncio.to_thread(paused, work)
+    return work()

@@ -17,6 +17,7 @@ from typing import Generic, TypeVar
 
 from service.decisions import DecisionColumns, DecisionLog, DecisionRecord
 from service.errors import DataError, DecisionLogError, UpshotError
+from service.scoring.collector import paused
 
 __all__ = ["Committer"]
 
@@ -91,7 +92,7 @@ class Committer:
         if not records:
             return
         if len(records) > _THREAD_RECORDS:
-            await _guard(asyncio.to_thread(self.log.append_sync, records))
+            await _guard(asyncio.to_thread(paused, lambda: self.log.append_sync(records)))
             return
         await self._records.add(records)
 
@@ -103,7 +104,8 @@ class Committer:
         if not len(columns):
             return
         if len(columns) > _THREAD_RECORDS:
-            await _guard(asyncio.to_thread(self.log.append_columns_sync, [columns]))
+            append = self.log.append_columns_sync
+            await _guard(asyncio.to_thread(paused, lambda: append([columns])))
             return
         await self._columns.add([columns])
 

@@ -185,7 +185,8 @@ class Decided:
 
     def reasons(self) -> list[list[str]]:
         """Reason codes of each decision: the policy's, then the input flags."""
-        return [a + b for a, b in zip(self.batch.reasons, self.input_reasons, strict=True)]
+        pairs = zip(self.batch.reasons, self.input_reasons, strict=True)
+        return [a + b if b else a for a, b in pairs]
 
 
 @dataclass(frozen=True, eq=False)

@@ -73,3 +73,28 @@ def test_the_log_appends_columns(tmp_path, make_record: RecordFactory) -> None: 
         assert [log.get(r.decision_id) for r in records] == [
             replace(r, created_at=CREATED) for r in records
         ]
+
+
+def test_rows_equal_the_record_rows_for_awkward_labels_and_numbers(
+    make_record: RecordFactory,
+) -> None:
+    # Arm labels that need escaping or sort differently by case and accent; numbers at
+    # the edges of float formatting. The column-wise JSON must equal orjson's per row.
+    arms = ["e%s,mail", "Call", "télé"]
+    probs = {"none": 0.1, "e%s,mail": 0.2, "Call": 0.3, "télé": 0.4}
+    records = [
+        replace(
+            make_record(i, created_at=CREATED),
+            arms=arms,
+            action="télé",
+            propensity=0.4,
+            action_probs=probs,
+            tau=[5e-324, -0.0, 1e300 * (i + 1)],
+            low=[-1.0, 0.1 + 0.2, 3.0],
+            high=[1.0, 2.0, 1e-17 * i],
+        )  # fmt: skip
+        for i in range(4)
+    ]
+    columns = DecisionColumns.from_records(records)
+    columns.check()
+    assert list(columns.rows()) == [to_row(r) for r in records]

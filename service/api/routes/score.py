@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import asyncio
-
 import numpy as np
 import numpy.typing as npt
 from fastapi import APIRouter
@@ -31,6 +29,7 @@ from service.scoring import (
     decide_one,
     decision_rows,
     resolve_values,
+    run_work,
 )
 from service.scoring import (
     score_batch as score_chunks,
@@ -41,8 +40,6 @@ router = APIRouter(prefix="/v1/score", tags=["scoring"], route_class=ScoringRout
 ERRORS: dict[int | str, dict[str, object]] = {
     status: {"model": ErrorBody} for status in (401, 403, 404, 413, 422, 503)
 }
-# Below this many customers, moving the work to a thread costs more than it frees.
-THREAD_ROWS = 2000
 
 
 @router.post("", response_model=Decision, responses=ERRORS)
@@ -94,7 +91,7 @@ async def validated(body: BatchScoreRequest, bound: BoundCampaign, n: int) -> Va
         ids, table, given = candidates(body, bound.schema)
         return ids, table, resolve_values(bound, given, len(ids))
 
-    return await asyncio.to_thread(work) if n > THREAD_ROWS else work()
+    return await run_work(work, n)
 
 
 def count_decisions(metrics: Metrics, campaign: str, records: list[DecisionRecord]) -> None:
