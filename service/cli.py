@@ -31,6 +31,7 @@ COMMANDS: tuple[str, ...] = (
     "export",
     "drift",
     "score",
+    "log",
 )
 """Modules of ``service.commands`` that provide sub-commands, in help order."""
 

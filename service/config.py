@@ -64,11 +64,13 @@ class Settings(BaseSettings):
     @field_validator("decision_log")
     @classmethod
     def _durable_log(cls, value: str) -> str:
-        if value.strip() in ("", ":memory:") or "mode=memory" in value:
-            raise ValueError(
-                "an in-memory decision log loses acknowledged decisions; give a file path "
-                "such as var/decisions.sqlite3"
-            )
+        # A SQLite file path or a postgresql:// URL; in-memory databases are refused.
+        from service.decisions.location import parse_location
+
+        try:
+            parse_location(value)
+        except ConfigError as err:
+            raise ValueError(str(err)) from None
         return value
 
     def keys(self) -> list[ApiKey]:

@@ -79,9 +79,7 @@ def create_app(
     state = ServiceState(settings, registry=registry, log=log, keyring=keyring, metrics=metrics_)
     # Drift gauges on /metrics, computed off the event loop from the log's last decisions.
     metrics_.registry.register(
-        DriftCollector(
-            lambda: (state.log.path, {c: b.bundle for c, b in state.catalog.bound.items()})
-        )
+        DriftCollector(lambda: (state.log, {c: b.bundle for c, b in state.catalog.bound.items()}))
     )
 
     @asynccontextmanager
@@ -129,6 +127,7 @@ def create_app(
     app.add_middleware(MetricsMiddleware, metrics=metrics_)
     for module in (health, score, rank, models, campaigns, admin, metrics, outcomes, lift):
         app.include_router(module.router)
+    app.include_router(outcomes.admin_router)
     return app
 
 

@@ -4,10 +4,12 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from pydantic import BaseModel, ConfigDict, Field, FiniteFloat, StrictBool
+from pydantic import BaseModel, ConfigDict, Field, StrictBool
 
 __all__ = [
     "AlternativeValue",
+    "CorrectionBody",
+    "CorrectionRequest",
     "EstimateBody",
     "LiftReportBody",
     "LiftWindow",
@@ -24,14 +26,20 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
 
+# A JSON number, never a string such as "1"; the store then checks it against the
+# outcome type of the decision's model (0/1 for binary) and a bound on amounts.
+OutcomeValue = StrictBool | Annotated[float, Field(strict=True, allow_inf_nan=False)]
+
+
 class OutcomeIn(_Strict):
     """The observed outcome of one logged decision."""
 
     decision_id: Annotated[str, Field(min_length=1, max_length=200)] = Field(
         description="The `decision_id` the service returned for the decision."
     )
-    outcome: StrictBool | FiniteFloat = Field(
-        description="1/0 (or true/false) for a response, or an amount such as revenue."
+    outcome: OutcomeValue = Field(
+        description="1/0 (or true/false) for a binary outcome, or an amount such as revenue "
+        "(within +/-1e9)."
     )
     observed_at: Annotated[str, Field(max_length=64)] | None = Field(
         None, description="When it was observed: ISO 8601 with a UTC offset."
@@ -42,6 +50,37 @@ class OutcomesRequest(_Strict):
     """Outcomes to record; all are stored, or none when one conflicts."""
 
     outcomes: list[OutcomeIn] = Field(min_length=1, description="One entry per decision.")
+
+
+class CorrectionRequest(_Strict):
+    """An explicit correction of a recorded outcome, with the reason."""
+
+    outcome: OutcomeValue = Field(description="The corrected outcome.")
+    observed_at: Annotated[str, Field(max_length=64)] | None = Field(
+        None, description="When it was observed: ISO 8601 with a UTC offset."
+    )
+    reason: Annotated[str, Field(min_length=1, max_length=1000)] = Field(
+        description="Why the recorded outcome was wrong (kept in the audit trail)."
+    )
+
+
+class OutcomeValueBody(BaseModel):
+    """An outcome as stored."""
+
+    decision_id: str
+    outcome: float
+    observed_at: str | None
+
+
+class CorrectionBody(BaseModel):
+    """What a correction changed, by whom, when and why."""
+
+    decision_id: str
+    previous: OutcomeValueBody
+    outcome: OutcomeValueBody
+    actor: str
+    reason: str
+    corrected_at: str
 
 
 class OutcomeReceiptBody(BaseModel):

@@ -13,7 +13,7 @@ import logging
 from service.api.auth import KeyRing
 from service.api.metrics import Metrics
 from service.config import Settings
-from service.decisions import DecisionLog, sqlite_path
+from service.decisions import DecisionLog
 from service.registry import ModelRegistry
 from service.scoring import Catalog, Committer, bind_campaigns, load_catalog
 
@@ -69,7 +69,7 @@ class ServiceState:
         if self._registry is None:
             self._registry = ModelRegistry(self.settings.models_dir)
         if self._log is None:
-            self._log = await asyncio.to_thread(_open_log, self.settings.decision_log)
+            self._log = await asyncio.to_thread(DecisionLog.open, self.settings.decision_log)
         self._committer = Committer(self._log)
         self._set_catalog(
             await asyncio.to_thread(
@@ -115,8 +115,3 @@ class ServiceState:
     def _set_catalog(self, catalog: Catalog) -> None:
         self._catalog = catalog
         self.metrics.set_models(catalog.serving())
-
-
-def _open_log(location: str) -> DecisionLog:
-    sqlite_path(location).parent.mkdir(parents=True, exist_ok=True)
-    return DecisionLog.open(location)

@@ -49,7 +49,7 @@ def run(args: argparse.Namespace) -> int:
     from service.loop import campaign_lift, plot_lift, read_logged
 
     campaign = load_campaign(args.campaigns, args.campaign)
-    logged = read_logged(args.log, args.campaign, since=args.since, until=args.until)
+    logged = read_logged(args.log, args.campaign, since=args.since, until=args.until, detail=False)
     report = campaign_lift(logged, campaign, confidence=args.confidence)
     if args.plot is not None:
         plot_lift(report, args.plot)

@@ -1,4 +1,5 @@
-"""``upshot outcomes import``: record outcomes from a CSV or Parquet file."""
+"""``upshot outcomes import|correct|history``: record outcomes from a file, correct one
+explicitly (who, when, why), show a decision's outcome and its corrections."""
 
 from __future__ import annotations
 
@@ -8,7 +9,8 @@ from typing import Any
 
 import pandas as pd
 
-from service.commands._loop import add_log
+from service.commands._common import add_models_dir, default_actor
+from service.commands._loop import add_log, print_json
 from service.errors import DataError
 
 __all__ = ["register"]
@@ -19,8 +21,15 @@ decision id column and an outcome column (1/0 for a response, or an amount), and
 have an observation time (ISO 8601 with a UTC offset). Post outcomes for every decision
 whose outcome is known, contacted or not: a non-response is an outcome of 0.
 Idempotent: outcomes already recorded with the same value change nothing; a different
-value for a decision that has one refuses the whole file (nothing is stored). Ids that
-match no logged decision are reported.
+value for a decision that has one refuses the whole file (nothing is stored); so does an
+outcome the decision's model cannot have (a binary model takes only 0 and 1; amounts
+stay within +/-1e9). Ids that match no logged decision are reported.
+"""
+
+_CORRECT = """\
+Correct the recorded outcome of one decision. The previous value is kept in the store
+with who corrected it, when and why (`upshot outcomes history ID` shows them); nothing
+is ever overwritten silently. The value is checked like any outcome.
 """
 
 
@@ -40,7 +49,23 @@ def register(subparsers: Any) -> None:
         "--time-column", default="observed_at", help="observation time, optional (observed_at)"
     )
     add_log(imp)
+    add_models_dir(imp)
     imp.set_defaults(handler=run_import)
+
+    fix = actions.add_parser("correct", help="correct one recorded outcome", description=_CORRECT)
+    fix.add_argument("decision_id", help="the decision whose outcome was wrong")
+    fix.add_argument("outcome", type=float, help="the corrected outcome (1/0 or an amount)")
+    fix.add_argument("--reason", required=True, help="why the recorded outcome was wrong")
+    fix.add_argument("--observed-at", help="when it was observed (ISO 8601 with offset)")
+    fix.add_argument("--actor", default=None, help="who corrects it (default: the OS user)")
+    add_log(fix)
+    add_models_dir(fix)
+    fix.set_defaults(handler=run_correct)
+
+    show = actions.add_parser("history", help="a decision's outcome and its corrections")
+    show.add_argument("decision_id")
+    add_log(show)
+    show.set_defaults(handler=run_history)
 
 
 def read_outcomes(path: Path, id_column: str) -> pd.DataFrame:
@@ -59,7 +84,9 @@ def read_outcomes(path: Path, id_column: str) -> pd.DataFrame:
 
 def run_import(args: argparse.Namespace) -> int:
     """Record the file's outcomes in one transaction and print what happened."""
-    from service.decisions.outcomes import OutcomeStore, outcomes_from_rows
+    from service.decisions import DecisionLog, outcomes_from_rows
+    from service.loop.kinds import registry_outcome_kinds
+    from service.registry import ModelRegistry
 
     frame = read_outcomes(args.file, args.id_column)
     for column in (args.id_column, args.outcome_column):
@@ -82,7 +109,9 @@ def run_import(args: argparse.Namespace) -> int:
         )
     ]
     outcomes = outcomes_from_rows(rows, where=str(args.file))
-    receipt = OutcomeStore.open(args.log).record(outcomes)
+    kinds = registry_outcome_kinds(ModelRegistry(args.models_dir))
+    with DecisionLog.open(args.log, create=False) as log:
+        receipt = log.record_outcomes(outcomes, kinds)
     print(
         f"{len(receipt.recorded)} outcome(s) recorded, {len(receipt.unchanged)} already "
         f"recorded (unchanged), {len(receipt.unknown)} with an unknown decision id"
@@ -93,4 +122,40 @@ def run_import(args: argparse.Namespace) -> int:
         print(
             f"WARNING: no logged decision has the id(s) {shown}{more}; nothing was stored for them"
         )
+    return 0
+
+
+def run_correct(args: argparse.Namespace) -> int:
+    """Correct one outcome and print what changed."""
+    from service.decisions import DecisionLog, parse_outcome
+    from service.loop.kinds import registry_outcome_kinds
+    from service.registry import ModelRegistry
+
+    fixed = parse_outcome(args.decision_id, args.outcome, args.observed_at, where="correction")
+    kinds = registry_outcome_kinds(ModelRegistry(args.models_dir))
+    with DecisionLog.open(args.log, create=False) as log:
+        done = log.correct_outcome(
+            fixed, actor=args.actor or default_actor(), reason=args.reason, kinds=kinds
+        )
+    print(
+        f"outcome of decision {done.decision_id} corrected from {done.previous.outcome:g} to "
+        f"{done.outcome.outcome:g} by {done.actor} at {done.corrected_at}"
+    )
+    return 0
+
+
+def run_history(args: argparse.Namespace) -> int:
+    """Print a decision's current outcome and every correction of it, as JSON."""
+    from service.decisions import DecisionLog
+
+    with DecisionLog.open(args.log, create=False) as log:
+        current = log.outcome(args.decision_id)
+        fixes = log.corrections(args.decision_id)
+    print_json(
+        {
+            "decision_id": args.decision_id,
+            "outcome": current.to_dict() if current else None,
+            "corrections": [c.to_dict() for c in fixes],
+        }
+    )
     return 0

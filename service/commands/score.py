@@ -67,7 +67,7 @@ def register(subparsers: Any) -> None:
 def run(args: argparse.Namespace) -> int:
     """Score the file and print a one-line summary."""
     from service.batch import Audience, output_format, score_file
-    from service.decisions import DecisionLog, sqlite_path
+    from service.decisions import DecisionLog
     from service.errors import DataError
     from service.policy import load_campaigns
     from service.registry import ModelRegistry
@@ -82,7 +82,6 @@ def run(args: argparse.Namespace) -> int:
     catalog = bind_campaigns(ModelRegistry(args.models_dir), campaigns)
     bound = catalog.get(args.campaign)
     audience = Audience(args.data, id_column=args.id_column)
-    sqlite_path(args.decision_log).parent.mkdir(parents=True, exist_ok=True)
     with DecisionLog.open(args.decision_log) as log, _runner(args, bound, audience) as runner:
         summary = score_file(
             bound, audience, args.out, log, rank=args.rank, capacity=args.capacity,

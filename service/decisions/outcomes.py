@@ -1,36 +1,42 @@
-"""Outcomes fed back by decision id: idempotent, all-or-nothing, unknown ids reported.
+"""Outcomes fed back by decision id: parsing, checks and the shapes the store returns.
 
-Outcomes live in the decision log's database (table ``outcomes``, one row per decision).
-Sending the same outcome again changes nothing; sending a different one for a decision
-that already has one is a conflict, and the whole request is refused with nothing
-written. Ids that match no logged decision are reported back, never silently dropped.
+Outcomes live in the decision store (table ``outcomes``, one row per decision; see
+:meth:`~service.decisions.DecisionLog.record_outcomes`). Sending the same outcome again
+changes nothing; sending a different one for a decision that already has one is a
+conflict, and the whole request is refused with nothing written; only an explicit
+correction (with who and why, kept in ``outcome_corrections``) changes a recorded one.
+Ids that match no logged decision are reported back, never silently dropped.
 """
 
 from __future__ import annotations
 
 import math
-import sqlite3
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
-from pathlib import Path
 from typing import Any
 
-from service.decisions.record import utc_now
-from service.decisions.schema import connect, create_schema, sqlite_path
 from service.errors import ConflictError, DataError
 
 __all__ = [
+    "MAX_AMOUNT",
+    "OUTCOME_TYPES",
+    "Correction",
     "Outcome",
     "OutcomeConflict",
     "OutcomeReceipt",
-    "OutcomeStore",
+    "check_outcome_kind",
+    "dedupe_outcomes",
     "outcomes_from_rows",
     "parse_outcome",
 ]
 
-# SQLite's default limit on bound parameters per statement is 999 in older builds.
-_CHUNK = 500
+MAX_AMOUNT = 1e9
+"""Largest outcome amount accepted (in absolute value). Our own bound, no source: far above
+any one customer's spend, and small enough that sums of squares over billions of
+decisions stay finite (one 1e308 used to turn every lift window holding it into an error)."""
+
+OUTCOME_TYPES = ("binary", "continuous")
 
 
 @dataclass(frozen=True)
@@ -106,6 +112,11 @@ def parse_outcome(
             f"{where}: outcome {outcome!r} of decision {decision_id!r} must be a finite "
             "number (1/0 for a response, or an amount)."
         )
+    if abs(outcome) > MAX_AMOUNT:
+        raise DataError(
+            f"{where}: outcome {outcome!r} of decision {decision_id!r} is beyond "
+            f"+/-{MAX_AMOUNT:g}; send the amount in the campaign's currency units."
+        )
     return Outcome(decision_id.strip(), float(outcome), _utc(observed_at, where))
 
 
@@ -131,94 +142,40 @@ def _utc(moment: object, where: str) -> str | None:
     return parsed.astimezone(UTC).isoformat(timespec="microseconds")
 
 
-class OutcomeStore:
-    """Reads and writes the ``outcomes`` table of a decision log database."""
-
-    def __init__(self, path: Path) -> None:
-        self.path = path
-
-    @classmethod
-    def open(cls, url_or_path: str | Path) -> OutcomeStore:
-        """The store of the log at ``sqlite:///<path>`` or a file path (created if needed)."""
-        path = sqlite_path(url_or_path)
-        create_schema(path)
-        return cls(path)
-
-    def record(self, outcomes: Sequence[Outcome]) -> OutcomeReceipt:
-        """Store outcomes in one transaction: all of them, or (on a conflict) none.
-
-        Raises
-        ------
-        OutcomeConflict
-            An outcome differs from the one stored for its decision, or the request
-            gives two different outcomes for one decision. Nothing is written.
-        """
-        fresh, unchanged = _dedupe(outcomes)
-        conn = connect(self.path)
-        try:
-            conn.execute("BEGIN IMMEDIATE")
-            try:
-                receipt = self._apply(conn, fresh, unchanged)
-            except BaseException:
-                conn.execute("ROLLBACK")
-                raise
-            conn.execute("COMMIT")
-        finally:
-            conn.close()
-        return receipt
-
-    def get(self, decision_id: str) -> Outcome | None:
-        """The stored outcome of a decision, or None."""
-        conn = connect(self.path, readonly=True)
-        try:
-            found = _stored(conn, [decision_id])
-        finally:
-            conn.close()
-        return found.get(decision_id)
-
-    def count(self) -> int:
-        """Outcomes stored."""
-        conn = connect(self.path, readonly=True)
-        try:
-            return int(conn.execute("SELECT COUNT(*) FROM outcomes").fetchone()[0])
-        finally:
-            conn.close()
-
-    @staticmethod
-    def _apply(
-        conn: sqlite3.Connection, fresh: dict[str, Outcome], unchanged: list[str]
-    ) -> OutcomeReceipt:
-        ids = list(fresh)
-        stored = _stored(conn, ids)
-        conflicts = [
-            {"decision_id": i, "stored": stored[i].to_dict(), "sent": fresh[i].to_dict()}
-            for i in ids
-            if i in stored and not fresh[i].agrees_with(stored[i])
-        ]
-        if conflicts:
-            raise OutcomeConflict(
-                f"{len(conflicts)} outcome(s) differ from the ones already recorded (first: "
-                f"decision {conflicts[0]['decision_id']!r}); an outcome, once recorded, is "
-                "not overwritten, so nothing of this request was stored. Resend without "
-                "them, or correct the data you send.",
-                conflicts,
-            )
-        known = _existing_decisions(conn, [i for i in ids if i not in stored])
-        new = [fresh[i] for i in ids if i in known]
-        received = utc_now()
-        conn.executemany(
-            "INSERT INTO outcomes (decision_id, outcome, observed_at, received_at) "
-            "VALUES (?, ?, ?, ?)",
-            [(o.decision_id, o.outcome, o.observed_at, received) for o in new],
-        )
-        return OutcomeReceipt(
-            recorded=[o.decision_id for o in new],
-            unchanged=unchanged + [i for i in ids if i in stored],
-            unknown=[i for i in ids if i not in stored and i not in known],
+def check_outcome_kind(outcome: Outcome, kind: str | None) -> None:
+    """Refuse an outcome its decision's outcome type cannot have (0/1 for ``binary``)."""
+    if kind == "binary" and outcome.outcome not in (0.0, 1.0):
+        raise DataError(
+            f"Outcome {outcome.outcome:g} of decision {outcome.decision_id!r} is impossible: "
+            "the model behind it predicts a binary outcome, so send 1 (responded) or 0 "
+            "(did not). Nothing of this request was stored."
         )
 
 
-def _dedupe(outcomes: Iterable[Outcome]) -> tuple[dict[str, Outcome], list[str]]:
+@dataclass(frozen=True)
+class Correction:
+    """An explicit change of a recorded outcome: before, after, who, when and why."""
+
+    decision_id: str
+    previous: Outcome
+    outcome: Outcome
+    actor: str
+    reason: str
+    corrected_at: str
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready fields."""
+        return {
+            "decision_id": self.decision_id,
+            "previous": self.previous.to_dict(),
+            "outcome": self.outcome.to_dict(),
+            "actor": self.actor,
+            "reason": self.reason,
+            "corrected_at": self.corrected_at,
+        }
+
+
+def dedupe_outcomes(outcomes: Iterable[Outcome]) -> tuple[dict[str, Outcome], list[str]]:
     """One outcome per id; a repeat that agrees is a no-op, one that differs a conflict."""
     fresh: dict[str, Outcome] = {}
     repeats: list[str] = []
@@ -235,35 +192,6 @@ def _dedupe(outcomes: Iterable[Outcome]) -> tuple[dict[str, Outcome], list[str]]
                 [{"decision_id": o.decision_id, "stored": None, "sent": o.to_dict()}],
             )
     return fresh, repeats
-
-
-def _chunks(ids: Sequence[str]) -> Iterable[Sequence[str]]:
-    for start in range(0, len(ids), _CHUNK):
-        yield ids[start : start + _CHUNK]
-
-
-def _stored(conn: sqlite3.Connection, ids: Sequence[str]) -> dict[str, Outcome]:
-    found: dict[str, Outcome] = {}
-    for chunk in _chunks(ids):
-        marks = ", ".join("?" for _ in chunk)
-        query = (
-            "SELECT decision_id, outcome, observed_at FROM outcomes "
-            f"WHERE decision_id IN ({marks})"
-        )
-        rows = conn.execute(query, list(chunk))
-        found.update({row[0]: Outcome(row[0], float(row[1]), row[2]) for row in rows})
-    return found
-
-
-def _existing_decisions(conn: sqlite3.Connection, ids: Sequence[str]) -> set[str]:
-    found: set[str] = set()
-    for chunk in _chunks(ids):
-        marks = ", ".join("?" for _ in chunk)
-        rows = conn.execute(
-            f"SELECT decision_id FROM decisions WHERE decision_id IN ({marks})", list(chunk)
-        )
-        found.update(row[0] for row in rows)
-    return found
 
 
 def outcomes_from_rows(rows: Iterable[Mapping[str, Any]], *, where: str) -> list[Outcome]:

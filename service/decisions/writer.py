@@ -1,24 +1,47 @@
-"""The log's single writer thread: group commit of concurrent appends."""
+"""The log's single writer thread: group commit of concurrent appends, for any engine."""
 
 from __future__ import annotations
 
 import logging
 import queue
-import sqlite3
 import threading
+from collections.abc import Callable
 from concurrent.futures import Future
 from dataclasses import dataclass, field
-from pathlib import Path
-from typing import Any
+from typing import Any, Protocol
 
-from service.decisions.schema import INSERT, connect
 from service.errors import UpshotError
 
-__all__ = ["GroupCommitWriter"]
+__all__ = ["GroupCommitWriter", "Rejected", "Sink"]
 
 logger = logging.getLogger(__name__)
 
 Row = tuple[Any, ...]
+
+
+class Rejected(Exception):
+    """The database refused one append call's rows; its savepoint was rolled back."""
+
+
+class Sink(Protocol):
+    """One write connection of an engine, driven by the writer thread only."""
+
+    def begin(self) -> None:
+        """Start a transaction that holds the write lock (reconnecting if needed)."""
+
+    def insert(self, rows: list[Row]) -> int:
+        """Insert rows inside a savepoint, skipping ids already logged; the count
+        inserted. Raise :class:`Rejected` (savepoint rolled back) if the rows break a
+        constraint; any other error means the transaction is lost."""
+
+    def commit(self) -> None:
+        """Commit; return only when the transaction is durable."""
+
+    def rollback(self) -> None:
+        """Roll back the open transaction, if any, never raising."""
+
+    def close(self) -> None:
+        """Close the connection."""
 
 
 @dataclass(eq=False)
@@ -41,12 +64,13 @@ class GroupCommitWriter(threading.Thread):
     for main memory database systems", SIGMOD '84 (group commit; citation from memory).
     """
 
-    def __init__(self, path: Path, *, group_limit: int = 1000) -> None:
-        super().__init__(name=f"decision-log-writer:{path.name}", daemon=True)
-        self.path = path
+    def __init__(self, where: str, open_sink: Callable[[], Sink], *, group_limit: int) -> None:
+        super().__init__(name=f"decision-log-writer:{where}", daemon=True)
+        self.where = where
         self.group_limit = group_limit
         self.commits = 0
         self.records_written = 0
+        self._open_sink = open_sink
         self._queue: queue.SimpleQueue[_Job | None] = queue.SimpleQueue()
         self._lock = threading.Lock()
         self._stopping = False
@@ -57,7 +81,7 @@ class GroupCommitWriter(threading.Thread):
         with self._lock:
             if self._stopping or self._failure is not None or not self.is_alive():
                 raise UpshotError(
-                    f"Decision log {str(self.path)!r} is closed or its writer failed "
+                    f"Decision log {self.where!r} is closed or its writer failed "
                     f"({self._failure!r}); reopen the log."
                 )
             job = _Job(rows)
@@ -71,19 +95,20 @@ class GroupCommitWriter(threading.Thread):
                 return
             self._stopping = True
             self._queue.put(None)
-        self.join()
+        if self.is_alive():
+            self.join()
 
     def run(self) -> None:
         try:
-            conn = connect(self.path)
-        except sqlite3.Error as err:
+            sink = self._open_sink()
+        except Exception as err:
             self._give_up(err)
             return
         try:
             while True:
                 group, stop = self._next_group()
                 if group:
-                    self._commit(conn, group)
+                    self._commit(sink, group)
                 if stop:
                     return
         except BaseException as err:  # never leave a caller waiting on a dead thread
@@ -91,7 +116,7 @@ class GroupCommitWriter(threading.Thread):
             self._give_up(err)
             raise
         finally:
-            conn.close()
+            sink.close()
 
     def _next_group(self) -> tuple[list[_Job], bool]:
         first = self._queue.get()
@@ -108,22 +133,23 @@ class GroupCommitWriter(threading.Thread):
             group.append(job)
         return group, False
 
-    def _commit(self, conn: sqlite3.Connection, group: list[_Job]) -> None:
+    def _commit(self, sink: Sink, group: list[_Job]) -> None:
         live = [job for job in group if job.future.set_running_or_notify_cancel()]
         if not live:
             return
         outcome: dict[_Job, int | BaseException] = {}
         try:
-            conn.execute("BEGIN IMMEDIATE")
+            sink.begin()
             for job in live:
-                outcome[job] = self._apply(conn, job)
-            conn.execute("COMMIT")
+                outcome[job] = self._apply(sink, job)
+            sink.commit()
         except Exception as err:
             logger.error("decision log commit failed: %s", err)
-            self._rollback(conn)
+            sink.rollback()
             error = UpshotError(
-                f"Decision log {str(self.path)!r} could not commit ({err}); nothing of this "
-                "request was logged. Check disk space and permissions, then retry."
+                f"Decision log {self.where!r} could not commit ({err}); nothing of this "
+                "request was logged. Check the database (disk space, permissions, "
+                "connection), then retry."
             )
             for job in live:
                 job.future.set_exception(error)
@@ -138,33 +164,21 @@ class GroupCommitWriter(threading.Thread):
                 job.future.set_result(result)
 
     @staticmethod
-    def _rollback(conn: sqlite3.Connection) -> None:
-        try:
-            if conn.in_transaction:
-                conn.execute("ROLLBACK")
-        except sqlite3.Error:
-            logger.exception("decision log rollback failed")
-
-    def _apply(self, conn: sqlite3.Connection, job: _Job) -> int | BaseException:
+    def _apply(sink: Sink, job: _Job) -> int | BaseException:
         if not job.rows:
             return 0
-        conn.execute("SAVEPOINT job")
         try:
-            inserted = conn.executemany(INSERT, job.rows).rowcount
-        except sqlite3.Error as err:
-            conn.execute("ROLLBACK TO job")
-            conn.execute("RELEASE job")
+            return sink.insert(job.rows)
+        except Rejected as err:
             return UpshotError(
                 f"Decision log rejected a batch of {len(job.rows)} records ({err}); none of "
                 "them was logged. Fix the records and retry."
             )
-        conn.execute("RELEASE job")
-        return inserted
 
     def _give_up(self, err: BaseException) -> None:
         with self._lock:
             self._failure = err
-        error = UpshotError(f"Decision log {str(self.path)!r} writer failed ({err}).")
+        error = UpshotError(f"Decision log {self.where!r} writer failed ({err}).")
         while True:
             try:
                 job = self._queue.get_nowait()

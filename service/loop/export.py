@@ -79,13 +79,15 @@ def _frame(done: LoggedDecisions) -> tuple[pd.DataFrame, list[str]]:
             f"Feature(s) {clash} have the names of export columns; rename the feature(s) "
             "in the model before exporting this log."
         )
-    records = done.records
+    detail = done.detail
+    if detail is None:
+        raise DataError("Export needs the decisions' detail; read them with detail=True.")
     front = pd.DataFrame(
         {
-            "decision_id": [r.decision_id for r in records],
-            "customer_id": [r.customer_id for r in records],
-            "created_at": [r.created_at for r in records],
-            "model_version": [f"{r.model_name}:{r.model_version}" for r in records],
+            "decision_id": detail.decision_id,
+            "customer_id": detail.customer_id,
+            "created_at": detail.created_at,
+            "model_version": detail.model,
         }
     )
     rows = range(len(done))
@@ -142,7 +144,7 @@ def export_training_table(logged: LoggedDecisions, path: Path | str) -> ExportRe
         "sha256": _sha256(path),
         "exported_at": utc_now(),
         "model_versions": frame["model_version"].value_counts().sort_index().to_dict(),
-        "policy_hashes": sorted({r.policy_hash for r in done.records}),
+        "policy_hashes": sorted(set(done.detail.policy_hash if done.detail else [])),
         "training": {
             "treatment": "treatment",
             "outcome": "outcome",

@@ -1,26 +1,61 @@
-"""Logged decisions of one campaign, joined with their outcomes, as aligned arrays."""
+"""Logged decisions of one campaign, joined with their outcomes, as aligned arrays.
+
+The store streams the rows in chunks; only compact arrays are kept (about 100 bytes per
+decision for the numbers lift and replay need). Per-decision text (ids, model, features
+as their JSON text) is kept only when asked for with ``detail=True``, and features are
+parsed only when used.
+"""
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from dataclasses import dataclass
-from datetime import UTC, datetime
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, replace
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
+import orjson
 import pandas as pd
 
-from service.decisions.record import COLUMNS, DecisionRecord, from_row
-from service.decisions.schema import connect, create_schema, sqlite_path
+from service.decisions import DecisionLog
+from service.decisions import utc_text as _store_utc_text
 from service.errors import DataError, NotFoundError
 
-__all__ = ["LoggedDecisions", "read_logged", "utc_text"]
+__all__ = ["LoggedDecisions", "iter_logged", "open_log", "read_logged", "utc_text"]
 
 FloatArray = npt.NDArray[np.float64]
-_FETCH = 1000
 _NO_CONTACT = "none"
+_NUMERIC = (
+    "created_at", "arms", "action", "action_probs", "holdout", "explored", "value", "tau",
+    "mu0", "outcome",
+)  # fmt: skip
+_DETAIL = (
+    "decision_id", "customer_id", "model_name", "model_version", "policy_hash", "features",
+    "observed_at",
+)  # fmt: skip
+_CHUNK = 5000
+
+LogSource = DecisionLog | str | Path
+
+
+@dataclass(frozen=True, eq=False)
+class Detail:
+    """Per-decision text of a window: ids, creation time, model, policy and features
+    (their JSON text as logged)."""
+
+    decision_id: list[str]
+    customer_id: list[str]
+    created_at: list[str]
+    model: list[str]
+    policy_hash: list[str]
+    features: list[str]
+    observed_at: list[str | None]
+
+    def take(self, index: npt.NDArray[np.intp]) -> Detail:
+        """The entries at ``index``."""
+        return Detail(**{k: [v[i] for i in index] for k, v in vars(self).items()})
 
 
 @dataclass(frozen=True, eq=False)
@@ -30,15 +65,14 @@ class LoggedDecisions:
     ``labels`` is ``["none", *arms]``; ``action`` indexes it; ``action_probs`` has one
     column per label; ``outcome`` is NaN where no outcome has been received yet;
     ``tau`` (n, K) and ``mu0`` are the logging model's estimates at decision time.
+    ``detail`` holds the per-decision text when read with ``detail=True``.
     """
 
     campaign: str
     since: str | None
     until: str | None
-    records: list[DecisionRecord]
     labels: list[str]
     outcome: FloatArray
-    observed_at: list[str | None]
     action: npt.NDArray[np.intp]
     action_probs: FloatArray
     holdout: npt.NDArray[np.bool_]
@@ -46,9 +80,12 @@ class LoggedDecisions:
     value: FloatArray
     tau: FloatArray
     mu0: FloatArray
+    first_at: str | None
+    last_at: str | None
+    detail: Detail | None = None
 
     def __len__(self) -> int:
-        return len(self.records)
+        return len(self.outcome)
 
     @property
     def arms(self) -> list[str]:
@@ -63,15 +100,17 @@ class LoggedDecisions:
 
     def subset(self, rows: npt.NDArray[np.bool_] | npt.NDArray[np.intp]) -> LoggedDecisions:
         """The same log restricted to ``rows`` (a mask or indices)."""
-        index = np.flatnonzero(rows) if np.asarray(rows).dtype == bool else np.asarray(rows)
-        return LoggedDecisions(
-            campaign=self.campaign,
-            since=self.since,
-            until=self.until,
-            records=[self.records[i] for i in index],
-            labels=list(self.labels),
+        mask = np.asarray(rows)
+        index = (np.flatnonzero(mask) if mask.dtype == bool else mask).astype(np.intp)
+        detail = self.detail.take(index) if self.detail is not None else None
+        first = last = None
+        if detail is not None and len(index):
+            first, last = detail.created_at[0], detail.created_at[-1]
+        elif len(index) == len(self):
+            first, last = self.first_at, self.last_at
+        return replace(
+            self,
             outcome=self.outcome[index],
-            observed_at=[self.observed_at[i] for i in index],
             action=self.action[index],
             action_probs=self.action_probs[index],
             holdout=self.holdout[index],
@@ -79,17 +118,34 @@ class LoggedDecisions:
             value=self.value[index],
             tau=self.tau[index],
             mu0=self.mu0[index],
+            first_at=first,
+            last_at=last,
+            detail=detail,
         )
 
     def with_outcomes(self) -> LoggedDecisions:
         """Only the decisions whose outcome has been received."""
         return self.subset(self.has_outcome)
 
+    def _detail(self) -> Detail:
+        if self.detail is None:
+            raise DataError(
+                "These decisions were read without their per-decision detail; read them "
+                "with read_logged(..., detail=True)."
+            )
+        return self.detail
+
+    @property
+    def decision_ids(self) -> list[str]:
+        """Decision id of each decision."""
+        return list(self._detail().decision_id)
+
     def feature_rows(self, names: Sequence[str] | None = None) -> list[dict[str, Any]]:
         """Features as scored, one mapping per decision (restricted to ``names`` if given)."""
+        parsed = (orjson.loads(text) for text in self._detail().features)
         if names is None:
-            return [dict(r.features) for r in self.records]
-        return [{k: r.features.get(k) for k in names} for r in self.records]
+            return list(parsed)
+        return [{k: row.get(k) for k in names} for row in parsed]
 
     def features(self) -> pd.DataFrame:
         """Features as scored, one column per feature logged (missing values as None)."""
@@ -97,127 +153,180 @@ class LoggedDecisions:
 
     def customer_ids(self) -> list[str]:
         """Customer id of each decision."""
-        return [r.customer_id for r in self.records]
+        return list(self._detail().customer_id)
+
+    def models(self) -> list[str]:
+        """``name:version`` of the model behind each decision."""
+        return list(self._detail().model)
 
     def first_last(self) -> tuple[str | None, str | None]:
         """Time of the first and of the last decision."""
-        if not self.records:
-            return None, None
-        return self.records[0].created_at, self.records[-1].created_at
+        return self.first_at, self.last_at
 
 
 def utc_text(moment: datetime | str | None, what: str) -> str | None:
     """An ISO 8601 time with offset (or None) as stored in the log: UTC, microseconds."""
-    if moment is None:
-        return None
-    if isinstance(moment, str):
-        try:
-            moment = datetime.fromisoformat(moment.strip().replace("Z", "+00:00"))
-        except ValueError:
-            raise DataError(
-                f"{what} {moment!r} is not ISO 8601; write e.g. 2026-03-01 or "
-                "2026-03-01T09:30:00+00:00."
-            ) from None
-    if moment.tzinfo is None:
-        moment = moment.replace(tzinfo=UTC)
-    return moment.astimezone(UTC).isoformat(timespec="microseconds")
+    try:
+        return _store_utc_text(moment)
+    except DataError:
+        raise DataError(
+            f"{what} {moment!r} is not ISO 8601; write e.g. 2026-03-01 or "
+            "2026-03-01T09:30:00+00:00."
+        ) from None
+
+
+def open_log(log: LogSource) -> tuple[DecisionLog, bool]:
+    """The log behind ``log`` (opened if a location, which must exist) and whether the
+    caller opened it (and so closes it)."""
+    if isinstance(log, DecisionLog):
+        return log, False
+    return DecisionLog.open(log, create=False), True
 
 
 def read_logged(
-    log: str | Path,
+    log: LogSource,
     campaign: str,
     *,
     since: datetime | str | None = None,
     until: datetime | str | None = None,
     last: int | None = None,
+    detail: bool = True,
+    with_outcome: bool = False,
 ) -> LoggedDecisions:
     """Read a campaign's decisions with ``since <= created_at < until`` and their outcomes.
 
     ``last`` keeps only the most recent ``last`` decisions of the window (read from the
     end of the index, so a long log costs no more than the window). Times without an
-    offset are taken as UTC. Raises :class:`NotFoundError` when the
-    window holds no decision of the campaign, and :class:`DataError` when the campaign's
-    arms changed inside the window (analyse each period on its own).
+    offset are taken as UTC. ``detail=False`` keeps only the numbers (what lift needs);
+    ``with_outcome`` only decisions that have an outcome. Raises :class:`NotFoundError`
+    when the window holds no decision of the campaign, and :class:`DataError` when the
+    campaign's arms changed inside the window (analyse each period on its own).
     """
-    path = sqlite_path(log)
-    if not path.exists():
-        raise NotFoundError(
-            f"Decision log {str(path)!r} does not exist; point --log (or UPSHOT_DECISION_LOG) "
-            "at the service's log."
+    parts = list(
+        iter_logged(
+            log, campaign, since=since, until=until, last=last, detail=detail,
+            with_outcome=with_outcome, chunk=_CHUNK,
         )
-    create_schema(path)
-    start, end = utc_text(since, "since"), utc_text(until, "until")
-    if last is not None and last < 1:
-        raise DataError(f"last={last!r} must be a positive number of decisions.")
-    rows = _query(path, campaign, start, end, last)
-    if not rows:
+    )  # fmt: skip
+    if not parts:
+        start, end = utc_text(since, "since"), utc_text(until, "until")
         window = f" between {start or 'the beginning'} and {end or 'now'}"
         raise NotFoundError(
             f"The log has no decisions of campaign {campaign!r}{window}; check the campaign "
             "id and the window."
         )
-    return _arrays(campaign, start, end, rows)
+    return _concat(parts)
 
 
-def _query(
-    path: Path, campaign: str, since: str | None, until: str | None, last: int | None
-) -> list[tuple[DecisionRecord, float | None, str | None]]:
-    columns = ", ".join(f"d.{c}" for c in COLUMNS)
-    clauses, params = ["d.campaign = ?"], [campaign]
-    for bound, op in ((since, ">="), (until, "<")):
-        if bound is not None:
-            clauses.append(f"d.created_at {op} ?")
-            params.append(bound)
-    order = "DESC" if last is not None else "ASC"
-    query = (
-        f"SELECT {columns}, o.outcome, o.observed_at FROM decisions d "
-        "LEFT JOIN outcomes o ON o.decision_id = d.decision_id "
-        f"WHERE {' AND '.join(clauses)} "
-        f"ORDER BY d.created_at {order}, d.decision_id {order}"
-    )
-    if last is not None:
-        query += f" LIMIT {int(last)}"
-    conn = connect(path, readonly=True)
+def iter_logged(
+    log: LogSource,
+    campaign: str,
+    *,
+    since: datetime | str | None = None,
+    until: datetime | str | None = None,
+    last: int | None = None,
+    detail: bool = True,
+    with_outcome: bool = False,
+    chunk: int = _CHUNK,
+) -> Iterator[LoggedDecisions]:
+    """:func:`read_logged` in pieces of at most ``chunk`` decisions, oldest first, for
+    readers that stream (export, replay): memory is bounded by ``chunk``."""
+    start, end = utc_text(since, "since"), utc_text(until, "until")
+    if last is not None and last < 1:
+        raise DataError(f"last={last!r} must be a positive number of decisions.")
+    store, owned = open_log(log)
+    columns = _NUMERIC + (_DETAIL if detail else ())
+    arms_text: str | None = None
     try:
-        cursor = conn.execute(query, params)
-        out: list[tuple[DecisionRecord, float | None, str | None]] = []
-        while batch := cursor.fetchmany(_FETCH):
-            out.extend((from_row(row[:-2]), row[-2], row[-1]) for row in batch)
-        return out[::-1] if last is not None else out
+        rows = store.iter_joined(
+            campaign, columns, since=start, until=end, last=last, with_outcome=with_outcome,
+            chunk=chunk,
+        )  # fmt: skip
+        for part in rows:
+            arms_text = _check_arms(campaign, part, arms_text)
+            yield _arrays(campaign, start, end, part, detail)
     finally:
-        conn.close()
+        if owned:
+            store.close()
+
+
+def _check_arms(campaign: str, rows: list[tuple[Any, ...]], first: str | None) -> str:
+    first = rows[0][1] if first is None else first
+    changed = next((row for row in rows if row[1] != first), None)
+    if changed is not None:
+        raise DataError(
+            f"Campaign {campaign!r} changed its arms inside the window (from "
+            f"{orjson.loads(first)} to {orjson.loads(changed[1])} at {changed[0]}); analyse "
+            "each period on its own with --since / --until."
+        )
+    return first
 
 
 def _arrays(
-    campaign: str,
-    since: str | None,
-    until: str | None,
-    rows: list[tuple[DecisionRecord, float | None, str | None]],
+    campaign: str, since: str | None, until: str | None, rows: list[tuple[Any, ...]], detail: bool
 ) -> LoggedDecisions:
-    records = [r for r, _, _ in rows]
-    arms = list(records[0].arms)
-    changed = next((r for r in records if list(r.arms) != arms), None)
-    if changed is not None:
-        raise DataError(
-            f"Campaign {campaign!r} changed its arms inside the window (from {arms} to "
-            f"{changed.arms} at {changed.created_at}); analyse each period on its own with "
-            "--since / --until."
-        )
+    arms = orjson.loads(rows[0][1])
     labels = [_NO_CONTACT, *arms]
     index = {label: j for j, label in enumerate(labels)}
+    n, k = len(rows), len(arms)
+    probs = np.empty((n, k + 1))
+    tau = np.empty((n, k))
+    for i, row in enumerate(rows):
+        p = orjson.loads(row[3])
+        probs[i] = [p[label] for label in labels]
+        tau[i] = orjson.loads(row[7])
+    columns = list(zip(*rows, strict=True))
+    info = None
+    if detail:
+        # Model labels repeat; one string per distinct model, not one per decision.
+        names: dict[tuple[str, str], str] = {}
+        model = [
+            names.setdefault((a, b), f"{a}:{b}")
+            for a, b in zip(columns[12], columns[13], strict=True)
+        ]
+        info = Detail(
+            decision_id=list(columns[10]),
+            customer_id=list(columns[11]),
+            created_at=list(columns[0]),
+            model=model,
+            policy_hash=list(columns[14]),
+            features=list(columns[15]),
+            observed_at=list(columns[16]),
+        )
     return LoggedDecisions(
         campaign=campaign,
         since=since,
         until=until,
-        records=records,
         labels=labels,
-        outcome=np.array([np.nan if y is None else y for _, y, _ in rows], dtype=np.float64),
-        observed_at=[t for _, _, t in rows],
-        action=np.array([index[r.action] for r in records], dtype=np.intp),
-        action_probs=np.array([[r.action_probs[k] for k in labels] for r in records]),
-        holdout=np.array([r.holdout for r in records], dtype=bool),
-        explored=np.array([r.explored for r in records], dtype=bool),
-        value=np.array([r.value for r in records], dtype=np.float64),
-        tau=np.array([r.tau for r in records], dtype=np.float64).reshape(len(records), len(arms)),
-        mu0=np.array([r.mu0 for r in records], dtype=np.float64),
+        outcome=np.array([np.nan if y is None else y for y in columns[9]], dtype=np.float64),
+        action=np.array([index[a] for a in columns[2]], dtype=np.intp),
+        action_probs=probs,
+        holdout=np.array(columns[4], dtype=bool),
+        explored=np.array(columns[5], dtype=bool),
+        value=np.array(columns[6], dtype=np.float64),
+        tau=tau,
+        mu0=np.array(columns[8], dtype=np.float64),
+        first_at=rows[0][0],
+        last_at=rows[-1][0],
+        detail=info,
     )
+
+
+def _concat(parts: list[LoggedDecisions]) -> LoggedDecisions:
+    if len(parts) == 1:
+        return parts[0]
+    head = parts[0]
+    detail = None
+    if head.detail is not None:
+        detail = Detail(
+            **{
+                key: [v for p in parts for v in getattr(p.detail, key)]
+                for key in vars(head.detail)
+            }
+        )
+    arrays = {
+        name: np.concatenate([getattr(p, name) for p in parts])
+        for name in ("outcome", "action", "action_probs", "holdout", "explored", "value", "tau",
+                     "mu0")
+    }  # fmt: skip
+    return replace(head, last_at=parts[-1].last_at, detail=detail, **arrays)  # type: ignore[arg-type]

@@ -11,6 +11,7 @@ from pathlib import Path
 from prometheus_client.core import GaugeMetricFamily
 from prometheus_client.registry import Collector
 
+from service.decisions import DecisionLog
 from service.errors import UpshotError
 from service.loop.logged import read_logged
 from service.monitoring.recent import log_drift
@@ -20,8 +21,8 @@ __all__ = ["DriftCollector"]
 
 logger = logging.getLogger(__name__)
 
-Source = Callable[[], tuple[Path, Mapping[str, LoadedBundle]]]
-"""Returns the log's path and the bundle serving each campaign."""
+Source = Callable[[], tuple[DecisionLog | str | Path, Mapping[str, LoadedBundle]]]
+"""Returns the decision log (or its location) and the bundle serving each campaign."""
 
 
 class DriftCollector(Collector):  # type: ignore[misc]
@@ -57,11 +58,11 @@ class DriftCollector(Collector):  # type: ignore[misc]
 
     def refresh(self) -> None:
         """Recompute every campaign's drift now (what the background thread runs)."""
-        path, bundles = self._source()
+        log, bundles = self._source()
         values = []
         for campaign, bundle in bundles.items():
             try:
-                logged = read_logged(path, campaign, last=self._window)
+                logged = read_logged(log, campaign, last=self._window)
                 report = log_drift(logged, bundle)
             except UpshotError as err:
                 logger.debug("no drift for campaign %s: %s", campaign, err)

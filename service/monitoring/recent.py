@@ -24,8 +24,6 @@ def log_drift(
     reference = bundle.manifest.get("reference", {})
     names = list(reference.get("features", {})) if isinstance(reference, dict) else []
     features = logged.features().reindex(columns=names) if names else logged.features()
-    own = np.array(
-        [(r.model_name, r.model_version) == (bundle.name, bundle.version) for r in logged.records]
-    )
+    own = np.array(logged.models()) == f"{bundle.name}:{bundle.version}"
     scores = {arm: logged.tau[own, j] for j, arm in enumerate(logged.arms)} if own.any() else {}
     return compare_to_reference(reference, features, scores)

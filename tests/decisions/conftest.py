@@ -1,12 +1,15 @@
-"""Shared record factory for the decision-log tests."""
+"""Shared record factory and store locations (SQLite and PostgreSQL) for the store tests."""
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import replace
+from pathlib import Path
 from typing import Any
 
 import pytest
+from postgres_db import clear_postgres
 
 from service.decisions import DecisionRecord, decision_id
 
@@ -52,3 +55,44 @@ def _make_record(i: int, **changes: Any) -> DecisionRecord:
 def make_record() -> RecordFactory:
     """Factory of valid records: ``make_record(i, **field_changes)``."""
     return _make_record
+
+
+ENGINES = ["sqlite", "postgres"]
+
+
+@pytest.fixture(params=ENGINES)
+def location(request: pytest.FixtureRequest, tmp_path: Path) -> str:
+    """An empty store: a SQLite file, or a PostgreSQL database (one per module, emptied)."""
+    if request.param == "sqlite":
+        return str(tmp_path / "decisions.sqlite3")
+    url: str = request.getfixturevalue("postgres_module_url")
+    clear_postgres(url)
+    return url
+
+
+@pytest.fixture
+def write_lock() -> Callable[[str], Any]:
+    """``with write_lock(location):`` holds the store's write lock from another connection."""
+    return _write_lock
+
+
+@contextmanager
+def _write_lock(location: str) -> Iterator[None]:
+    """Hold the store's write lock from another connection while the block runs."""
+    if location.startswith("postgresql://"):
+        import psycopg
+
+        with psycopg.connect(location) as conn:
+            conn.execute("LOCK TABLE decisions IN EXCLUSIVE MODE")
+            yield
+            conn.rollback()
+        return
+    import sqlite3
+
+    conn = sqlite3.connect(location, isolation_level=None)
+    try:
+        conn.execute("BEGIN IMMEDIATE")
+        yield
+        conn.execute("ROLLBACK")
+    finally:
+        conn.close()

@@ -64,9 +64,9 @@ def test_a_zero_propensity_is_refused(make_record: RecordFactory) -> None:
         replace(columns, action_probs=probs).check()
 
 
-def test_the_log_appends_columns(tmp_path, make_record: RecordFactory) -> None:  # type: ignore[no-untyped-def]
+def test_the_log_appends_columns(location: str, make_record: RecordFactory) -> None:
     records = _records(make_record)
-    with DecisionLog.open(tmp_path / "log.sqlite3") as log:
+    with DecisionLog.open(location) as log:
         log.append_columns_sync([DecisionColumns.from_records(records)])
         log.append_columns_sync([DecisionColumns.from_records(records)])  # a retry: no change
         assert log.records_written == len(records)

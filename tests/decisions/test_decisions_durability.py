@@ -1,4 +1,5 @@
-"""An acknowledged decision survives the process being killed right after append returns."""
+"""An acknowledged decision survives the process being killed right after append returns
+(both engines: SQLite fsyncs its WAL, PostgreSQL commits with synchronous_commit = on)."""
 
 from __future__ import annotations
 
@@ -7,7 +8,6 @@ import signal
 import subprocess
 import sys
 import textwrap
-from pathlib import Path
 
 from service.decisions import DecisionLog
 
@@ -36,7 +36,7 @@ _CHILD_PRELUDE = textwrap.dedent(
 )
 
 
-def _run_child(body: str, path: Path) -> subprocess.Popen[str]:
+def _run_child(body: str, path: str) -> subprocess.Popen[str]:
     return subprocess.Popen(
         [sys.executable, "-c", _CHILD_PRELUDE + textwrap.dedent(body), str(path)],
         stdout=subprocess.PIPE,
@@ -44,8 +44,8 @@ def _run_child(body: str, path: Path) -> subprocess.Popen[str]:
     )
 
 
-def test_record_survives_sigkill_right_after_append_sync(tmp_path: Path) -> None:
-    path = tmp_path / "log.db"
+def test_record_survives_sigkill_right_after_append_sync(location: str) -> None:
+    path = location
     child = _run_child(
         """
         log.append_sync([record(1), record(2)])
@@ -60,10 +60,10 @@ def test_record_survives_sigkill_right_after_append_sync(tmp_path: Path) -> None
     assert [r.customer_id for r in stored] == ["LTC-000001", "LTC-000002"]
 
 
-def test_every_acknowledged_decision_survives_a_kill_mid_stream(tmp_path: Path) -> None:
+def test_every_acknowledged_decision_survives_a_kill_mid_stream(location: str) -> None:
     # The child appends from 16 concurrent tasks (group commit) and prints each id once
     # its append has returned; the parent kills it while appends are still in flight.
-    path = tmp_path / "log.db"
+    path = location
     child = _run_child(
         """
         async def worker(start):

@@ -1,26 +1,28 @@
-"""The decision log: storage, idempotency, group commit, all-or-nothing appends."""
+"""The decision store on both engines: storage, idempotency, group commit, all-or-nothing."""
 
 from __future__ import annotations
 
 import asyncio
 import sqlite3
+import threading
 from collections.abc import Callable, Iterator
 from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import Any
 
 import pytest
 
-from service.decisions import DecisionLog, DecisionRecord
+from service.decisions import DecisionLog, DecisionRecord, parse_location
 from service.decisions.record import to_row
-from service.errors import ConfigError, DataError, UpshotError
+from service.errors import ConfigError, DataError, NotFoundError, UpshotError
 
 RecordFactory = Callable[..., DecisionRecord]
 
 
 @pytest.fixture
-def log(tmp_path: Path) -> Iterator[DecisionLog]:
-    with DecisionLog.open(tmp_path / "decisions.db") as opened:
+def log(location: str) -> Iterator[DecisionLog]:
+    with DecisionLog.open(location) as opened:
         yield opened
 
 
@@ -35,8 +37,39 @@ def test_appended_records_can_be_read_back(log: DecisionLog, make_record: Record
     since = datetime(2026, 3, 1, 9, 0, 1, tzinfo=UTC)
     window = log.iter_decisions("larkspur-renewal", since=since, until="2026-03-01T09:00:03Z")
     assert [r.customer_id for r in window] == ["LTC-000001", "LTC-000002"]
-    with pytest.raises(DataError, match=r"has no UTC offset"):
-        list(log.iter_decisions("larkspur-renewal", since="2026-03-01T09:00:00"))
+    # A time without an offset is UTC.
+    naive = log.iter_decisions("larkspur-renewal", since="2026-03-01T09:00:04")
+    assert [r.customer_id for r in naive] == ["LTC-000004"]
+    with pytest.raises(DataError, match=r"'yesterday' is not ISO 8601"):
+        list(log.iter_decisions("larkspur-renewal", since="yesterday"))
+
+
+def test_window_reads_join_outcomes_and_keep_the_last(
+    log: DecisionLog, make_record: RecordFactory
+) -> None:
+    from service.decisions import Outcome
+
+    records = [make_record(i) for i in range(6)]
+    log.append_sync(records)
+    log.record_outcomes(
+        [Outcome(records[1].decision_id, 1.0), Outcome(records[4].decision_id, 0.0)]
+    )
+    rows = [
+        row
+        for chunk in log.iter_joined("larkspur-renewal", ("customer_id", "outcome"), chunk=2)
+        for row in chunk
+    ]
+    assert rows == [(f"LTC-00000{i}", {1: 1.0, 4: 0.0}.get(i)) for i in range(6)]
+    last = [r for c in log.iter_joined("larkspur-renewal", ("customer_id",), last=2) for r in c]
+    assert last == [("LTC-000004",), ("LTC-000005",)]
+    done = [r for c in log.iter_joined("larkspur-renewal", ("customer_id",), with_outcome=True)
+            for r in c]  # fmt: skip
+    assert done == [("LTC-000001",), ("LTC-000004",)]
+    assert log.feature_names("larkspur-renewal") == ["monthly_spend", "plan", "tenure_months"]
+    with pytest.raises(DataError, match=r"Unknown column\(s\) \['secret'\]"):
+        list(log.iter_joined("larkspur-renewal", ("secret",)))
+    counts = log.counts()
+    assert (counts.decisions, counts.outcomes, counts.corrections) == (6, 2, 0)
 
 
 def test_a_retried_append_is_idempotent(log: DecisionLog, make_record: RecordFactory) -> None:
@@ -47,6 +80,18 @@ def test_a_retried_append_is_idempotent(log: DecisionLog, make_record: RecordFac
     assert log.records_written == 1
     assert log.get(first.decision_id) == first
     assert len(list(log.iter_decisions("larkspur-renewal"))) == 1
+
+
+def test_a_large_append_keeps_the_first_record_of_each_id(
+    log: DecisionLog, make_record: RecordFactory
+) -> None:
+    # 200 rows take the bulk path (COPY on PostgreSQL); ids already logged are skipped.
+    records = [make_record(i) for i in range(200)]
+    log.append_sync(records[:50])
+    changed = [replace(r, created_at="2026-03-02T00:00:00+00:00") for r in records[:50]]
+    log.append_sync(changed + records[50:])
+    assert log.records_written == 200
+    assert list(log.iter_decisions("larkspur-renewal")) == records
 
 
 def test_concurrent_appends_all_land_in_fewer_transactions(
@@ -65,9 +110,9 @@ def test_concurrent_appends_all_land_in_fewer_transactions(
 
 
 def test_group_limit_one_gives_one_transaction_per_call(
-    tmp_path: Path, make_record: RecordFactory
+    location: str, make_record: RecordFactory
 ) -> None:
-    with DecisionLog.open(tmp_path / "single.db", group_limit=1) as single:
+    with DecisionLog.open(location, group_limit=1) as single:
 
         async def main() -> None:
             await asyncio.gather(*(single.append([make_record(i)]) for i in range(40)))
@@ -86,28 +131,30 @@ def test_an_invalid_record_rejects_the_whole_append(
     assert log.get(batch[0].decision_id) is None
 
 
+@pytest.mark.parametrize("size", [2, 100])
 def test_a_batch_the_database_rejects_rolls_back_alone(
-    log: DecisionLog, make_record: RecordFactory
+    location: str, make_record: RecordFactory, size: int, write_lock: Callable[[str], Any]
 ) -> None:
     good_a = [to_row(make_record(i)) for i in range(3)]
     good_c = [to_row(make_record(i)) for i in range(10, 13)]
     bad_row = list(to_row(make_record(20)))
     bad_row[19] = 2.0  # propensity column: violates the table's CHECK constraint
-    bad_b = [to_row(make_record(21)), tuple(bad_row)]
-    # Hold the write lock so that the three batches queue up and share one transaction.
-    blocker = sqlite3.connect(log.path, isolation_level=None)
-    blocker.execute("BEGIN IMMEDIATE")
-    probe = log._writer.submit(None)
-    futures = [log._writer.submit(rows) for rows in (good_a, bad_b, good_c)]
-    blocker.execute("ROLLBACK")
-    blocker.close()
-    probe.result(timeout=20)
-    assert futures[0].result(timeout=20) == 3 and futures[2].result(timeout=20) == 3
-    with pytest.raises(UpshotError, match=r"rejected a batch of 2 records"):
-        futures[1].result(timeout=20)
-    assert log.commits == 1
-    assert log.get(make_record(21).decision_id) is None
-    assert len(list(log.iter_decisions("larkspur-renewal"))) == 6
+    bad_b = [to_row(make_record(1000 + i)) for i in range(size - 1)] + [tuple(bad_row)]
+    with DecisionLog.open(location) as log:
+        writer = log._writer_thread()
+        # While another connection holds the write lock, the writer is stuck on a first
+        # call; the three batches queue behind it and then share one transaction.
+        with write_lock(location):
+            first = writer.submit([to_row(make_record(500))])
+            threading.Event().wait(0.3)
+            futures = [writer.submit(rows) for rows in (good_a, bad_b, good_c)]
+        assert first.result(timeout=20) == 1
+        assert futures[0].result(timeout=20) == 3 and futures[2].result(timeout=20) == 3
+        with pytest.raises(UpshotError, match=rf"rejected a batch of {size} records"):
+            futures[1].result(timeout=20)
+        assert log.commits == 2
+        assert log.get(make_record(1000).decision_id) is None
+        assert len(list(log.iter_decisions("larkspur-renewal"))) == 7
 
 
 @pytest.mark.parametrize(
@@ -115,16 +162,35 @@ def test_a_batch_the_database_rejects_rolls_back_alone(
     [
         (":memory:", r"is in memory"),
         ("sqlite:///:memory:", r"is in memory"),
-        ("postgresql://db/log", r"unsupported database"),
+        ("mysql://db/log", r"uses the scheme 'mysql'; give a file path for SQLite"),
         ("sqlite://relative.db", r"not of the form sqlite:///<path>"),
+        ("postgresql://user:secret@db:5432/", r"names no database"),
+        ("postgresql://user:secret@db:port/log", r"invalid port"),
+        ("postgresql://db/log?pool_max=0", r"pool_max='0' must be a positive whole number"),
+        ("postgresql://db/log?pool_min=5&pool_max=2", r"pool_min=5 above pool_max=2"),
     ],
 )
-def test_unsafe_or_unsupported_targets_are_refused(target: str, match: str) -> None:
-    with pytest.raises(ConfigError, match=match):
+def test_unsafe_or_malformed_locations_are_refused(target: str, match: str) -> None:
+    with pytest.raises(ConfigError, match=match) as caught:
         DecisionLog.open(target)
+    assert "secret" not in str(caught.value)
 
 
-def test_database_uses_wal_and_holds_the_outcomes_table(
+def test_locations_are_told_apart() -> None:
+    assert parse_location("var/log.db").engine == "sqlite"
+    assert parse_location("sqlite:////abs/log.db").target == "/abs/log.db"
+    pg = parse_location("postgres://u:p@db:6432/log?pool_max=8&sslmode=require")
+    assert (pg.engine, pg.options) == ("postgresql", {"pool_min": 1, "pool_max": 8})
+    assert pg.target == "postgresql://u:p@db:6432/log?sslmode=require"
+
+
+def test_a_missing_sqlite_file_is_not_created_for_reading(tmp_path: Path) -> None:
+    with pytest.raises(NotFoundError, match=r"does not exist; point --log"):
+        DecisionLog.open(tmp_path / "nope.db", create=False)
+    assert not (tmp_path / "nope.db").exists()
+
+
+def test_sqlite_uses_wal_and_holds_the_outcomes_table(
     tmp_path: Path, make_record: RecordFactory
 ) -> None:
     path = tmp_path / "sub" / "log.db"
@@ -141,8 +207,8 @@ def test_database_uses_wal_and_holds_the_outcomes_table(
         conn.close()
 
 
-def test_writable_until_closed(tmp_path: Path, make_record: RecordFactory) -> None:
-    opened = DecisionLog.open(tmp_path / "log.db")
+def test_writable_until_closed(location: str, make_record: RecordFactory) -> None:
+    opened = DecisionLog.open(location)
     assert opened.writable()
     opened.close()
     assert not opened.writable()

@@ -1,87 +1,123 @@
-"""Outcomes by decision id: idempotent, all-or-nothing on conflict, unknown ids reported."""
+"""Outcomes by decision id on both engines: idempotent, all-or-nothing on conflict,
+unknown ids reported, impossible values refused, corrections kept with who and why."""
 
 from __future__ import annotations
 
-import sqlite3
-from pathlib import Path
+from collections.abc import Callable, Iterator
 
 import pytest
 
-from service.decisions import DecisionLog
+from service.decisions import MAX_AMOUNT, DecisionLog, DecisionRecord
 from service.decisions.outcomes import (
     Outcome,
     OutcomeConflict,
-    OutcomeStore,
     outcomes_from_rows,
     parse_outcome,
 )
-from service.errors import ConflictError, DataError
+from service.errors import ConflictError, DataError, NotFoundError
+
+Store = tuple[DecisionLog, list[str]]
 
 
 @pytest.fixture
-def store(tmp_path: Path, make_record) -> tuple[OutcomeStore, list[str]]:
-    path = tmp_path / "log.sqlite3"
+def store(location: str, make_record: Callable[..., DecisionRecord]) -> Iterator[Store]:
     records = [make_record(i) for i in range(5)]
-    with DecisionLog.open(path) as log:
+    with DecisionLog.open(location) as log:
         log.append_sync(records)
-    return OutcomeStore.open(path), [r.decision_id for r in records]
+        yield log, [r.decision_id for r in records]
 
 
-def _rows(path: Path) -> list[tuple[str, float, str | None]]:
-    with sqlite3.connect(path) as conn:
-        return conn.execute(
-            "SELECT decision_id, outcome, observed_at FROM outcomes ORDER BY decision_id"
-        ).fetchall()
+def _rows(log: DecisionLog) -> list[tuple[str, float | None]]:
+    rows = log.iter_joined("larkspur-renewal", ("decision_id", "outcome"), with_outcome=True)
+    return sorted(row for chunk in rows for row in chunk)  # type: ignore[misc]
 
 
-def test_record_then_same_again_is_a_no_op(store) -> None:
-    outcomes, ids = store
+def _binary(name: str, version: str) -> str:
+    assert (name, version) == ("larkspur", "v0001")
+    return "binary"
+
+
+def test_record_then_same_again_is_a_no_op(store: Store) -> None:
+    log, ids = store
     sent = [Outcome(ids[0], 1.0, "2026-03-02T10:00:00.000000+00:00"), Outcome(ids[1], 0.0)]
-    first = outcomes.record(sent)
+    first = log.record_outcomes(sent)
     assert (first.recorded, first.unchanged, first.unknown) == ([ids[0], ids[1]], [], [])
-    before = _rows(outcomes.path)
-    again = outcomes.record(sent)
+    again = log.record_outcomes(sent)
     assert (again.recorded, again.unchanged) == ([], [ids[0], ids[1]])
-    assert _rows(outcomes.path) == before  # received_at untouched too
-    assert outcomes.get(ids[0]) == sent[0] and outcomes.count() == 2
+    assert log.outcome(ids[0]) == sent[0] and log.counts().outcomes == 2
 
 
-def test_a_conflict_refuses_the_whole_request(store) -> None:
-    outcomes, ids = store
-    outcomes.record([Outcome(ids[0], 1.0)])
-    before = _rows(outcomes.path)
+def test_a_conflict_refuses_the_whole_request(store: Store) -> None:
+    log, ids = store
+    log.record_outcomes([Outcome(ids[0], 1.0)])
+    before = _rows(log)
     with pytest.raises(OutcomeConflict, match="differ from the ones already recorded") as err:
-        outcomes.record([Outcome(ids[2], 1.0), Outcome(ids[0], 0.0), Outcome(ids[3], 0.0)])
+        log.record_outcomes([Outcome(ids[2], 1.0), Outcome(ids[0], 0.0), Outcome(ids[3], 0.0)])
     assert isinstance(err.value, ConflictError)
     assert err.value.details["conflicts"][0]["decision_id"] == ids[0]
-    assert _rows(outcomes.path) == before  # ids[2] and ids[3] were not stored either
+    assert _rows(log) == before  # ids[2] and ids[3] were not stored either
 
 
-def test_two_different_outcomes_in_one_request_conflict(store) -> None:
-    outcomes, ids = store
+def test_two_different_outcomes_in_one_request_conflict(store: Store) -> None:
+    log, ids = store
     with pytest.raises(OutcomeConflict, match="two different outcomes"):
-        outcomes.record([Outcome(ids[0], 1.0), Outcome(ids[1], 1.0), Outcome(ids[0], 0.0)])
-    assert _rows(outcomes.path) == []
-    receipt = outcomes.record([Outcome(ids[0], 1.0), Outcome(ids[0], 1.0)])
+        log.record_outcomes([Outcome(ids[0], 1.0), Outcome(ids[1], 1.0), Outcome(ids[0], 0.0)])
+    assert _rows(log) == []
+    receipt = log.record_outcomes([Outcome(ids[0], 1.0), Outcome(ids[0], 1.0)])
     assert (receipt.recorded, receipt.unchanged) == ([ids[0]], [ids[0]])
 
 
-def test_observation_time_must_agree_when_both_are_given(store) -> None:
-    outcomes, ids = store
-    outcomes.record([Outcome(ids[0], 1.0, "2026-03-02T10:00:00.000000+00:00")])
-    assert outcomes.record([Outcome(ids[0], 1.0)]).unchanged == [ids[0]]  # time unknown: agrees
+def test_observation_time_must_agree_when_both_are_given(store: Store) -> None:
+    log, ids = store
+    log.record_outcomes([Outcome(ids[0], 1.0, "2026-03-02T10:00:00.000000+00:00")])
+    assert log.record_outcomes([Outcome(ids[0], 1.0)]).unchanged == [ids[0]]  # time unknown
     with pytest.raises(OutcomeConflict):
-        outcomes.record([Outcome(ids[0], 1.0, "2026-03-03T10:00:00.000000+00:00")])
+        log.record_outcomes([Outcome(ids[0], 1.0, "2026-03-03T10:00:00.000000+00:00")])
 
 
-def test_unknown_ids_are_reported_and_the_rest_stored(store) -> None:
-    outcomes, ids = store
-    receipt = outcomes.record([Outcome("no-such-decision", 1.0), Outcome(ids[4], 12.5)])
+def test_unknown_ids_are_reported_and_the_rest_stored(store: Store) -> None:
+    log, ids = store
+    receipt = log.record_outcomes([Outcome("no-such-decision", 1.0), Outcome(ids[4], 12.5)])
     assert receipt.unknown == ["no-such-decision"] and receipt.recorded == [ids[4]]
     assert receipt.to_dict() == {
         "recorded": 1, "unchanged": 0, "unknown": 1, "unknown_ids": ["no-such-decision"],
     }  # fmt: skip
-    assert [r[0] for r in _rows(outcomes.path)] == [ids[4]]
+    assert _rows(log) == [(ids[4], 12.5)]
+
+
+@pytest.mark.parametrize("value", [2.0, -5.0, 0.5])
+def test_a_binary_decision_refuses_anything_but_0_and_1(store: Store, value: float) -> None:
+    log, ids = store
+    with pytest.raises(
+        DataError, match=rf"Outcome {value:g} of decision '{ids[1]}' is impossible"
+    ):
+        log.record_outcomes([Outcome(ids[0], 1.0), Outcome(ids[1], value)], _binary)
+    assert _rows(log) == []  # nothing of the request
+    # Without a known type (e.g. a deleted model version) amounts are accepted.
+    assert log.record_outcomes([Outcome(ids[1], value)], lambda n, v: None).recorded == [ids[1]]
+
+
+def test_a_correction_is_explicit_and_audited(store: Store) -> None:
+    log, ids = store
+    log.record_outcomes([Outcome(ids[0], 1.0, "2026-03-02T10:00:00.000000+00:00")])
+    with pytest.raises(OutcomeConflict):  # a plain resend never overwrites
+        log.record_outcomes([Outcome(ids[0], 0.0)])
+    done = log.correct_outcome(
+        Outcome(ids[0], 0.0), actor="ana", reason="CRM sent the wrong customer", kinds=_binary
+    )
+    assert (done.previous.outcome, done.outcome.outcome, done.actor) == (1.0, 0.0, "ana")
+    assert log.outcome(ids[0]) == Outcome(ids[0], 0.0, None)
+    history = log.corrections(ids[0])
+    assert [h.to_dict() for h in history] == [done.to_dict()]
+    assert history[0].previous.observed_at == "2026-03-02T10:00:00.000000+00:00"
+    assert log.counts().corrections == 1
+    with pytest.raises(DataError, match=r"Outcome 3 of decision .* is impossible"):
+        log.correct_outcome(Outcome(ids[0], 3.0), actor="ana", reason="x", kinds=_binary)
+    with pytest.raises(DataError, match=r"non-empty reason"):
+        log.correct_outcome(Outcome(ids[0], 1.0), actor="ana", reason=" ")
+    with pytest.raises(NotFoundError, match=r"has no recorded outcome to correct"):
+        log.correct_outcome(Outcome(ids[1], 1.0), actor="ana", reason="late")
+    assert len(log.corrections(ids[0])) == 1
 
 
 def test_parsing_normalises_and_names_the_problem() -> None:
@@ -90,6 +126,11 @@ def test_parsing_normalises_and_names_the_problem() -> None:
     assert parse_outcome("d1", 3, "2026-03-02T10:00Z").observed_at.endswith("+00:00")  # type: ignore[union-attr]
     with pytest.raises(DataError, match="finite number"):
         parse_outcome("d1", float("nan"))
+    with pytest.raises(DataError, match="finite number"):
+        parse_outcome("d1", "1")
+    with pytest.raises(DataError, match=r"outcome 1e\+308 of decision 'd1' is beyond"):
+        parse_outcome("d1", 1e308)
+    assert parse_outcome("d1", -MAX_AMOUNT).outcome == -MAX_AMOUNT
     with pytest.raises(DataError, match="no UTC offset"):
         parse_outcome("d1", 1, "2026-03-02T10:00:00")
     with pytest.raises(DataError, match="row 2: decision_id"):

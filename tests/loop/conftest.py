@@ -18,7 +18,6 @@ from loop_world import (
 from threadpoolctl import threadpool_limits
 
 from service.decisions import DecisionLog
-from service.decisions.outcomes import OutcomeStore
 
 
 @pytest.fixture(autouse=True, scope="session")
@@ -49,7 +48,7 @@ def world(tmp_path_factory: pytest.TempPathFactory) -> Iterator[World]:
     catalog = bind(models_dir, campaigns_file)
     days, boundaries = [], []
     with DecisionLog.open(log_path) as log:
-        store = OutcomeStore.open(log_path)
+        store = log
         for day in (1, 2):
             days.append(run_day_in_process(catalog, log, store, day, 3000))
             boundaries.append(log.get(days[-1].decision_ids[0]).created_at)  # type: ignore[union-attr]

@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from service.decisions import DecisionLog
-from service.decisions.outcomes import Outcome, OutcomeStore
+from service.decisions.outcomes import Outcome
 from service.registry import ModelRegistry
 from service.scoring import Catalog, bind_campaigns, decide_chunk, emit_columns
 from service.simulation import SimulatedCampaign, simulate
@@ -97,7 +97,7 @@ def draw_outcomes(sim: SimulatedCampaign, action: np.ndarray, seed: int) -> np.n
 
 
 def run_day_in_process(
-    catalog: Catalog, log: DecisionLog, store: OutcomeStore | None, day: int, n: int
+    catalog: Catalog, log: DecisionLog, store: DecisionLog | None, day: int, n: int
 ) -> Day:
     """Score a day's customers through the scoring engine, log them, post outcomes (unless
     ``store`` is None)."""
@@ -111,7 +111,9 @@ def run_day_in_process(
     batch = decided.batch
     y = draw_outcomes(sim, batch.action, seed=200 + day)
     if store is not None:
-        store.record([Outcome(d, float(v)) for d, v in zip(logged.decision_id, y, strict=True)])
+        store.record_outcomes(
+            [Outcome(d, float(v)) for d, v in zip(logged.decision_id, y, strict=True)]
+        )
     d_ids = list(logged.decision_id)
     return Day(sim, ids, d_ids, batch.action, batch.chosen, batch.action_probs, y)
 

@@ -12,7 +12,6 @@ from loop_world import CAMPAIGN, bind, run_day_in_process, train_worse_model
 
 from service.cli import main as run_cli
 from service.decisions import DecisionLog
-from service.decisions.outcomes import OutcomeStore
 from service.registry import ModelRegistry
 
 
@@ -48,7 +47,8 @@ def test_outcomes_import_is_idempotent_and_all_or_nothing(fresh_log, tmp_path, c
     changed = ["outcomes", "import", str(tmp_path / "changed.parquet"), "--log", str(path)]
     assert run_cli(changed) == 1
     assert "differ from the ones already recorded" in capsys.readouterr().err
-    assert OutcomeStore(path).count() == 400
+    with DecisionLog.open(path) as log:
+        assert log.counts().outcomes == 400
 
 
 def test_lift_prints_intervals_and_draws_a_plot(world, tmp_path, capsys) -> None:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 
+import orjson
 from loop_world import CAMPAIGN
 
 from service.loop import read_logged
@@ -23,17 +24,13 @@ def test_same_population_is_stable_and_a_shift_is_flagged(world) -> None:
     assert all(i.level == "stable" for i in report.items if i.kind == "feature")
     # The same customers with tenure tripled and missing regions: flagged.
     shifted = [
-        dataclasses.replace(
-            r,
-            features={
-                **r.features,
-                "tenure_months": 3 * (r.features["tenure_months"] or 0),
-                "region": None,
-            },
-        )
-        for r in logged.records
+        orjson.dumps(
+            {**row, "tenure_months": 3 * (row["tenure_months"] or 0), "region": None}
+        ).decode()
+        for row in logged.feature_rows()
     ]
-    moved = log_drift(dataclasses.replace(logged, records=shifted), bundle, last=2000)
+    detail = dataclasses.replace(logged.detail, features=shifted)
+    moved = log_drift(dataclasses.replace(logged, detail=detail), bundle, last=2000)
     levels = {i.name: i.level for i in moved.items if i.kind == "feature"}
     assert levels["tenure_months"] == "act" and levels["region"] == "act"
     assert levels["plan"] == "stable"

@@ -46,7 +46,7 @@ DAY_SIZE = 4000
 
 def _truth(days, logged, bundle, campaign) -> float:
     action, _ = candidate_actions(bundle, campaign, logged)
-    expected = expected_for(days, [r.decision_id for r in logged.records])
+    expected = expected_for(days, logged.decision_ids)
     return true_policy_value(expected, one_hot(action, 3))
 
 

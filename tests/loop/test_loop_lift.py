@@ -38,21 +38,19 @@ def test_lift_interval_covers_the_simulated_true_lift(world) -> None:
 def test_window_selects_one_day(world) -> None:
     day2 = read_logged(world.log_path, CAMPAIGN, since=world.boundaries[1])
     assert len(day2) == 3000
-    assert {r.decision_id for r in day2.records} == set(world.days[1].decision_ids)
+    assert set(day2.decision_ids) == set(world.days[1].decision_ids)
     day1 = read_logged(world.log_path, CAMPAIGN, until=world.boundaries[1])
     # Decisions of one batch share a time; the log orders them by id, so align by id.
     first = world.days[0]
     where = {d: i for i, d in enumerate(first.decision_ids)}
-    order = [where[r.decision_id] for r in day1.records]
+    order = [where[d] for d in day1.decision_ids]
     np.testing.assert_array_equal(day1.action, first.action[order])
     np.testing.assert_array_equal(day1.outcome, first.outcome[order])
     np.testing.assert_allclose(day1.action_probs, first.probs[order])
     # The most recent decisions, read from the end of the index, in log order.
     everything = read_logged(world.log_path, CAMPAIGN)
     tail = read_logged(world.log_path, CAMPAIGN, last=100)
-    assert [r.decision_id for r in tail.records] == [
-        r.decision_id for r in everything.records[-100:]
-    ]
+    assert tail.decision_ids == [d for d in everything.decision_ids[-100:]]
 
 
 def test_plot_is_a_png(world, tmp_path) -> None:

@@ -15,7 +15,6 @@ from loop_world import (
 )
 
 from service.decisions import DecisionLog
-from service.decisions.outcomes import OutcomeStore
 from service.loop import candidate_actions, read_logged, replay, replay_gate
 from service.offpolicy import one_hot
 from service.policy import load_campaigns
@@ -30,7 +29,7 @@ def worse(world) -> str:
 def _truth(world, logged, bundle, campaign) -> float:
     done = logged.with_outcomes()
     action, _ = candidate_actions(bundle, campaign, done)
-    expected = expected_for(world.days, [r.decision_id for r in done.records])
+    expected = expected_for(world.days, done.decision_ids)
     return true_policy_value(expected, one_hot(action, 3))
 
 
@@ -75,7 +74,7 @@ def test_a_log_without_exploration_lacks_support(world, worse, tmp_path) -> None
     campaigns = write_campaigns(tmp_path / "greedy.toml", exploration=0.0, holdout=0.0)
     path = tmp_path / "greedy.sqlite3"
     with DecisionLog.open(path) as log:
-        run_day_in_process(bind(world.models_dir, campaigns), log, OutcomeStore.open(path), 9, 800)
+        run_day_in_process(bind(world.models_dir, campaigns), log, log, 9, 800)
     campaign = load_campaigns(campaigns)[CAMPAIGN]
     logged = read_logged(path, CAMPAIGN)
     challenger = ModelRegistry(world.models_dir).load("larkspur", worse)

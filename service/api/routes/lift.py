@@ -40,7 +40,7 @@ async def campaign_lift_report(
         )
 
     def work() -> dict[str, Any]:
-        logged = read_logged(log.path, campaign_id, since=since, until=until)
+        logged = read_logged(log, campaign_id, since=since, until=until, detail=False)
         return campaign_lift(logged, campaign, confidence=confidence).to_dict()
 
     return LiftReportBody.model_validate(await asyncio.to_thread(work))

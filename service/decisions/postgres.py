@@ -1,0 +1,258 @@
+"""The decision store on PostgreSQL, for several replicas sharing one log.
+
+psycopg 3: a connection pool for reads and outcome writes, and one dedicated connection
+for the group-commit writer (``synchronous_commit = on``, so a COMMIT returns only once
+the transaction is durable on the server). Large append calls go through COPY into a
+temporary table and then ``INSERT ... ON CONFLICT DO NOTHING``, which keeps the first
+record of an id also against another process appending the same id at the same time.
+The password may come from the URL or from the standard libpq environment variables
+(``PGPASSWORD``, ``PGPASSFILE``, ...).
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Iterable, Iterator, Sequence
+from contextlib import contextmanager
+from typing import Any
+
+import psycopg
+import psycopg.errors
+from psycopg_pool import ConnectionPool
+
+from service.decisions.location import redact
+from service.decisions.migrations import MIGRATIONS, SCHEMA_VERSION
+from service.decisions.record import COLUMNS, utc_now
+from service.decisions.store import DecisionLog, Tx
+from service.decisions.writer import Rejected, Row
+from service.errors import ConfigError, DecisionLogError
+
+__all__ = ["PostgresLog", "migrate_postgres"]
+
+logger = logging.getLogger(__name__)
+
+# Advisory lock keys (arbitrary constants, "upsh" in ASCII plus one).
+_MIGRATE_LOCK = 0x75707368
+_OUTCOMES_LOCK = 0x75707369
+# At or above this many rows per append call, COPY beats a multi-row INSERT
+# (bench/decision_log.py --postgres measures both).
+_COPY_MIN = 64
+_CONNECT_TIMEOUT_S = 10
+
+_NAMES = ", ".join(COLUMNS)
+_INSERT = (
+    f"INSERT INTO decisions ({_NAMES}) VALUES ({', '.join('%s' for _ in COLUMNS)}) "
+    "ON CONFLICT (decision_id) DO NOTHING"
+)
+_STAGE = (
+    "CREATE TEMP TABLE IF NOT EXISTS decisions_in "
+    "(LIKE decisions INCLUDING DEFAULTS) ON COMMIT DELETE ROWS"
+)
+_FROM_STAGE = (
+    f"INSERT INTO decisions ({_NAMES}) SELECT {_NAMES} FROM decisions_in "
+    "ON CONFLICT (decision_id) DO NOTHING"
+)
+_REJECTED = (psycopg.errors.IntegrityError, psycopg.errors.DataError)
+
+
+def _connect(url: str, *, autocommit: bool) -> psycopg.Connection[Any]:
+    try:
+        return psycopg.connect(url, autocommit=autocommit, connect_timeout=_CONNECT_TIMEOUT_S)
+    except psycopg.OperationalError as err:
+        raise DecisionLogError(
+            f"Cannot connect to the decision log at {redact(url)!r} ({_first_line(err)}); "
+            "check the host, port, database, user and password (in the URL or PGPASSWORD)."
+        ) from err
+
+
+def _first_line(err: BaseException) -> str:
+    return str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
+
+
+def migrate_postgres(url: str) -> list[int]:
+    """Apply the missing schema steps in one transaction; return the versions applied.
+
+    An advisory lock makes replicas that start together apply them once.
+    """
+    with _connect(url, autocommit=True) as conn, conn.transaction():
+        conn.execute("SELECT pg_advisory_xact_lock(%s)", (_MIGRATE_LOCK,))
+        conn.execute(
+            "CREATE TABLE IF NOT EXISTS upshot_schema (version INTEGER PRIMARY KEY, "
+            "description TEXT NOT NULL, applied_at TEXT NOT NULL)"
+        )
+        row = conn.execute("SELECT COALESCE(MAX(version), 0) FROM upshot_schema").fetchone()
+        version = int(row[0]) if row else 0
+        if version > SCHEMA_VERSION:
+            raise ConfigError(
+                f"Decision log {redact(url)!r} has schema version {version}, newer than "
+                f"this upshot ({SCHEMA_VERSION}); upgrade upshot."
+            )
+        applied = []
+        for step in MIGRATIONS:
+            if step.version > version:
+                for statement in (s.strip() for s in step.postgres.split(";")):
+                    if statement:
+                        conn.execute(statement)  # type: ignore[call-overload]
+                conn.execute(
+                    "INSERT INTO upshot_schema (version, description, applied_at) "
+                    "VALUES (%s, %s, %s)",
+                    (step.version, step.description, utc_now()),
+                )
+                applied.append(step.version)
+        return applied
+
+
+class PostgresLog(DecisionLog):
+    """The decision log in a PostgreSQL database (``postgresql://...``)."""
+
+    engine = "postgresql"
+
+    def __init__(
+        self, url: str, *, group_limit: int = 1000, pool_min: int = 1, pool_max: int = 4
+    ) -> None:
+        super().__init__(redact(url), group_limit=group_limit)
+        self.url = url
+        migrate_postgres(url)
+        self._pool = ConnectionPool(
+            url,
+            min_size=pool_min,
+            max_size=pool_max,
+            kwargs={"connect_timeout": _CONNECT_TIMEOUT_S},
+            check=ConnectionPool.check_connection,
+            name="upshot-decision-log",
+            timeout=_CONNECT_TIMEOUT_S,
+            open=True,
+        )
+
+    def schema_version(self) -> int:
+        with self._read() as tx:
+            return int(tx.rows("SELECT MAX(version) FROM upshot_schema")[0][0])
+
+    def _open_sink(self) -> _PostgresSink:
+        return _PostgresSink(self.url)
+
+    @contextmanager
+    def _read(self) -> Iterator[Tx]:
+        self._check_open()
+        with self._pool.connection() as conn:
+            conn.read_only = True
+            try:
+                yield _PostgresTx(conn)
+            finally:
+                conn.rollback()
+                conn.read_only = False
+
+    @contextmanager
+    def _write(self) -> Iterator[Tx]:
+        # The pool's connection context commits on success and rolls back on an error.
+        self._check_open()
+        with self._pool.connection() as conn:
+            conn.execute("SELECT pg_advisory_xact_lock(%s)", (_OUTCOMES_LOCK,))
+            yield _PostgresTx(conn)
+
+    def _stream(
+        self, sql: str, params: Sequence[Any], chunk: int
+    ) -> Iterator[list[tuple[Any, ...]]]:
+        self._check_open()
+        with self._pool.connection() as conn, conn.cursor(name="upshot_rows") as cursor:
+            cursor.itersize = chunk
+            cursor.execute(_marks(sql), list(params))
+            while rows := cursor.fetchmany(chunk):
+                yield rows
+
+    def _feature_names(
+        self, campaign: str, since: str | None, until: str | None, with_outcome: bool
+    ) -> Iterable[str]:
+        clauses, params = ["d.campaign = ?"], [campaign]
+        for bound, op in ((since, ">="), (until, "<")):
+            if bound is not None:
+                clauses.append(f"d.created_at {op} ?")
+                params.append(bound)
+        if with_outcome:
+            clauses.append("EXISTS (SELECT 1 FROM outcomes o WHERE o.decision_id = d.decision_id)")
+        sql = (
+            "SELECT DISTINCT jsonb_object_keys(d.features::jsonb) FROM decisions d "
+            f"WHERE {' AND '.join(clauses)}"
+        )
+        with self._read() as tx:
+            return [row[0] for row in tx.rows(sql, params)]
+
+    def _close_connections(self) -> None:
+        self._pool.close()
+
+
+def _marks(sql: str) -> str:
+    # The store writes its SQL with ? placeholders (none appears inside a literal).
+    return sql.replace("?", "%s")
+
+
+class _PostgresTx:
+    def __init__(self, conn: psycopg.Connection[Any]) -> None:
+        self._conn = conn
+
+    def rows(self, sql: str, params: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
+        return self._conn.execute(_marks(sql), list(params)).fetchall()  # type: ignore[call-overload,no-any-return]
+
+    def run(self, sql: str, params: Sequence[Any] = ()) -> int:
+        return self._conn.execute(_marks(sql), list(params)).rowcount  # type: ignore[call-overload,no-any-return]
+
+    def many(self, sql: str, params: Sequence[Sequence[Any]]) -> None:
+        if params:
+            with self._conn.cursor() as cursor:
+                cursor.executemany(_marks(sql), params)  # type: ignore[arg-type]
+
+
+class _PostgresSink:
+    """The writer thread's own connection; reconnects when the server dropped it."""
+
+    def __init__(self, url: str) -> None:
+        self._url = url
+        self._conn = self._fresh()
+
+    def _fresh(self) -> psycopg.Connection[Any]:
+        conn = _connect(self._url, autocommit=True)
+        conn.execute("SET synchronous_commit = on")
+        return conn
+
+    def begin(self) -> None:
+        if self._conn.closed or self._conn.broken:
+            self._conn = self._fresh()
+        self._conn.execute("BEGIN")
+
+    def insert(self, rows: list[Row]) -> int:
+        conn = self._conn
+        conn.execute("SAVEPOINT job")
+        try:
+            with conn.cursor() as cursor:
+                if len(rows) >= _COPY_MIN:
+                    cursor.execute(_STAGE)
+                    cursor.execute("TRUNCATE decisions_in")
+                    with cursor.copy(f"COPY decisions_in ({_NAMES}) FROM STDIN") as copy:
+                        for row in rows:
+                            copy.write_row(row)
+                    cursor.execute(_FROM_STAGE)
+                    inserted = cursor.rowcount
+                else:
+                    inserted = 0
+                    for row in rows:
+                        cursor.execute(_INSERT, row)
+                        inserted += cursor.rowcount
+        except _REJECTED as err:
+            conn.execute("ROLLBACK TO SAVEPOINT job")
+            conn.execute("RELEASE SAVEPOINT job")
+            raise Rejected(_first_line(err)) from err
+        conn.execute("RELEASE SAVEPOINT job")
+        return inserted
+
+    def commit(self) -> None:
+        self._conn.execute("COMMIT")
+
+    def rollback(self) -> None:
+        try:
+            if not self._conn.closed and not self._conn.broken:
+                self._conn.execute("ROLLBACK")
+        except psycopg.Error:
+            logger.exception("decision log rollback failed")
+
+    def close(self) -> None:
+        self._conn.close()

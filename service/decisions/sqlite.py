@@ -1,0 +1,222 @@
+"""The embedded decision store: one SQLite file, WAL journaling, ``synchronous=FULL``."""
+
+from __future__ import annotations
+
+import sqlite3
+import threading
+from collections.abc import Iterable, Iterator, Sequence
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any
+
+from service.decisions.migrations import MIGRATIONS, SCHEMA_VERSION
+from service.decisions.record import COLUMNS
+from service.decisions.store import DecisionLog, Tx
+from service.decisions.writer import Rejected, Row
+from service.errors import ConfigError, NotFoundError
+
+__all__ = ["SqliteLog", "connect", "migrate_sqlite"]
+
+# Replicas sharing one file wait this long for another writer's lock before failing.
+_BUSY_TIMEOUT_MS = 10_000
+
+# Idempotent on the id only: unlike INSERT OR IGNORE, which would also silently skip a
+# row that breaks a CHECK or NOT NULL constraint, this still fails such a row.
+INSERT = (
+    f"INSERT INTO decisions ({', '.join(COLUMNS)}) "
+    f"VALUES ({', '.join('?' for _ in COLUMNS)}) ON CONFLICT (decision_id) DO NOTHING"
+)
+
+
+def connect(path: Path, *, readonly: bool = False) -> sqlite3.Connection:
+    """A connection in autocommit mode with the log's durability settings.
+
+    WAL lets readers run beside the single writer; ``synchronous=FULL`` makes every
+    COMMIT fsync the write-ahead log, so a committed decision survives a crash of the
+    process and of the machine.
+    """
+    conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False)
+    conn.execute(f"PRAGMA busy_timeout = {_BUSY_TIMEOUT_MS}")
+    conn.execute("PRAGMA synchronous = FULL")
+    if readonly:
+        conn.execute("PRAGMA query_only = 1")
+    return conn
+
+
+def migrate_sqlite(path: Path) -> list[int]:
+    """Create the file if needed, switch it to WAL and apply the missing schema steps.
+
+    Each step runs in its own transaction with its version number, so an interrupted
+    upgrade leaves the log at the previous version. Returns the versions applied.
+    """
+    path.parent.mkdir(parents=True, exist_ok=True)
+    conn = connect(path)
+    try:
+        mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+        if str(mode).lower() != "wal":
+            raise ConfigError(
+                f"Decision log {str(path)!r} cannot use WAL journaling (got {mode!r}); "
+                "put it on a local file system."
+            )
+        applied = []
+        for step in MIGRATIONS:
+            conn.execute("BEGIN IMMEDIATE")
+            try:
+                version = int(conn.execute("PRAGMA user_version").fetchone()[0])
+                if version > SCHEMA_VERSION:
+                    raise ConfigError(
+                        f"Decision log {str(path)!r} has schema version {version}, newer "
+                        f"than this upshot ({SCHEMA_VERSION}); upgrade upshot."
+                    )
+                if version < step.version:
+                    for statement in _statements(step.sqlite):
+                        conn.execute(statement)
+                    conn.execute(f"PRAGMA user_version = {step.version}")
+                    applied.append(step.version)
+                conn.execute("COMMIT")
+            except BaseException:
+                conn.execute("ROLLBACK")
+                raise
+        return applied
+    finally:
+        conn.close()
+
+
+def _statements(script: str) -> list[str]:
+    # executescript() would commit the open transaction; run statement by statement.
+    return [s.strip() for s in script.split(";") if s.strip()]
+
+
+class SqliteLog(DecisionLog):
+    """The decision log in one SQLite file (the embedded default)."""
+
+    engine = "sqlite"
+
+    def __init__(self, path: str | Path, *, group_limit: int = 1000, create: bool = True) -> None:
+        self.path = Path(path)
+        if not create and not self.path.exists():
+            raise NotFoundError(
+                f"Decision log {str(self.path)!r} does not exist; point --log (or "
+                "UPSHOT_DECISION_LOG) at the service's log."
+            )
+        super().__init__(str(self.path), group_limit=group_limit)
+        migrate_sqlite(self.path)
+        self._local = threading.local()
+        self._readers: list[sqlite3.Connection] = []
+        self._readers_lock = threading.Lock()
+
+    def schema_version(self) -> int:
+        with self._read() as tx:
+            return int(tx.rows("PRAGMA user_version")[0][0])
+
+    def _open_sink(self) -> _SqliteSink:
+        return _SqliteSink(connect(self.path))
+
+    @contextmanager
+    def _read(self) -> Iterator[Tx]:
+        self._check_open()
+        conn: sqlite3.Connection | None = getattr(self._local, "conn", None)
+        if conn is None:
+            conn = connect(self.path, readonly=True)
+            self._local.conn = conn
+            with self._readers_lock:
+                self._readers.append(conn)
+        yield _SqliteTx(conn)
+
+    @contextmanager
+    def _write(self) -> Iterator[Tx]:
+        self._check_open()
+        conn = connect(self.path)
+        try:
+            conn.execute("BEGIN IMMEDIATE")
+            try:
+                yield _SqliteTx(conn)
+            except BaseException:
+                conn.execute("ROLLBACK")
+                raise
+            conn.execute("COMMIT")
+        finally:
+            conn.close()
+
+    def _stream(
+        self, sql: str, params: Sequence[Any], chunk: int
+    ) -> Iterator[list[tuple[Any, ...]]]:
+        self._check_open()
+        conn = connect(self.path, readonly=True)
+        try:
+            cursor = conn.execute(sql, list(params))
+            while rows := cursor.fetchmany(chunk):
+                yield rows
+        finally:
+            conn.close()
+
+    def _feature_names(
+        self, campaign: str, since: str | None, until: str | None, with_outcome: bool
+    ) -> Iterable[str]:
+        clauses, params = ["d.campaign = ?"], [campaign]
+        for bound, op in ((since, ">="), (until, "<")):
+            if bound is not None:
+                clauses.append(f"d.created_at {op} ?")
+                params.append(bound)
+        if with_outcome:
+            clauses.append("d.decision_id IN (SELECT decision_id FROM outcomes)")
+        sql = (
+            "SELECT DISTINCT f.key FROM decisions d, json_each(d.features) f "
+            f"WHERE {' AND '.join(clauses)}"
+        )
+        with self._read() as tx:
+            return [row[0] for row in tx.rows(sql, params)]
+
+    def _close_connections(self) -> None:
+        with self._readers_lock:
+            for conn in self._readers:
+                conn.close()
+            self._readers.clear()
+
+
+class _SqliteTx:
+    def __init__(self, conn: sqlite3.Connection) -> None:
+        self._conn = conn
+
+    def rows(self, sql: str, params: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
+        return self._conn.execute(sql, list(params)).fetchall()
+
+    def run(self, sql: str, params: Sequence[Any] = ()) -> int:
+        return self._conn.execute(sql, list(params)).rowcount
+
+    def many(self, sql: str, params: Sequence[Sequence[Any]]) -> None:
+        self._conn.executemany(sql, params)
+
+
+class _SqliteSink:
+    """The writer thread's connection: BEGIN IMMEDIATE, one savepoint per append call."""
+
+    def __init__(self, conn: sqlite3.Connection) -> None:
+        self._conn = conn
+
+    def begin(self) -> None:
+        self._conn.execute("BEGIN IMMEDIATE")
+
+    def insert(self, rows: list[Row]) -> int:
+        self._conn.execute("SAVEPOINT job")
+        try:
+            inserted = self._conn.executemany(INSERT, rows).rowcount
+        except sqlite3.Error as err:
+            self._conn.execute("ROLLBACK TO job")
+            self._conn.execute("RELEASE job")
+            raise Rejected(str(err)) from err
+        self._conn.execute("RELEASE job")
+        return inserted
+
+    def commit(self) -> None:
+        self._conn.execute("COMMIT")
+
+    def rollback(self) -> None:
+        try:
+            if self._conn.in_transaction:
+                self._conn.execute("ROLLBACK")
+        except sqlite3.Error:
+            pass
+
+    def close(self) -> None:
+        self._conn.close()
