@@ -158,8 +158,9 @@ def chunk_columns(
 ) -> tuple[list[str], dict[str, list[Any]], list[Any] | None]:
     """Ids, feature columns (lists of Python values) and optional values of a chunk.
 
-    The same Python values a JSON request carries: numbers, text and None. A NaN in a
-    numeric column counts as missing (files have no other way to say it).
+    The same Python values a JSON request carries: numbers, text and None. An empty CSV
+    cell and a NaN in a numeric column count as missing (files have no other way to say
+    it).
     """
     names = table.column_names
     _require_id(names, id_column, None)
@@ -243,7 +244,9 @@ def _csv_chunks(path: Path, chunk_rows: int, id_column: str) -> Iterator[pa.Tabl
             path,
             read_options=pacsv.ReadOptions(block_size=1 << 22),
             parse_options=pacsv.ParseOptions(delimiter=delimiter),
-            convert_options=pacsv.ConvertOptions(column_types={id_column: pa.string()}),
+            convert_options=pacsv.ConvertOptions(
+                column_types={id_column: pa.string()}, strings_can_be_null=True
+            ),
         )
     except pa.ArrowInvalid as err:
         raise DataError(f"{str(path)!r} cannot be read as CSV: {err}") from err

@@ -34,7 +34,17 @@ def campaigns_file(tmp_path: Path) -> Path:
     return path
 
 
+@pytest.fixture(params=["sqlite", "postgres"])
+def log_url(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[str]:
+    """The shared decision log: a SQLite file, or a fresh PostgreSQL database."""
+    if request.param == "sqlite":
+        yield str(tmp_path / "decisions.sqlite3")
+    else:
+        url: str = request.getfixturevalue("postgres_empty_url")
+        yield url
+
+
 @pytest.fixture
-def log_url(tmp_path: Path) -> Iterator[str]:
-    """The shared decision log (SQLite file here)."""
-    yield str(tmp_path / "decisions.sqlite3")
+def sqlite_log_url(tmp_path: Path) -> str:
+    """A SQLite log, for tests whose subject does not depend on the log's engine."""
+    return str(tmp_path / "decisions.sqlite3")

@@ -86,9 +86,9 @@ class Replica:
 
 def start_replica(
     name: str, models_dir: Path, campaigns_file: Path, log_url: str, workdir: Path,
-    *, workers: int = 1, timeout: float = 90.0,
+    *, workers: int = 1,
 ) -> Replica:  # fmt: skip
-    """Start ``upshot serve`` on a free loopback port and wait until /readyz says ready."""
+    """Start ``upshot serve`` on a free loopback port (then :func:`wait_ready`)."""
     port = free_port()
     env = {
         **os.environ,
@@ -108,14 +108,21 @@ def start_replica(
     with output.open("wb") as sink:
         process = subprocess.Popen(command, env=env, stdout=sink, stderr=subprocess.STDOUT)
     client = httpx.Client(base_url=f"http://127.0.0.1:{port}", timeout=60.0)
-    replica = Replica(process, client, output)
+    return Replica(process, client, output)
+
+
+def wait_ready(replica: Replica, *, timeout: float = 120.0) -> None:
+    """Wait until the replica's /readyz says ready; stop it and raise if it never does."""
+    process, client, output, name = (
+        replica.process, replica.client, replica.output, replica.output.stem
+    )  # fmt: skip
     deadline = time.monotonic() + timeout
     while time.monotonic() < deadline:
         if process.poll() is not None:
             raise RuntimeError(f"replica {name} exited:\n{output.read_text(errors='replace')}")
         try:
             if client.get("/readyz").status_code == 200:
-                return replica
+                return
         except httpx.TransportError:
             pass
         time.sleep(0.2)

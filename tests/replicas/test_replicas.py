@@ -24,9 +24,13 @@ from replica_support import (
     customers,
     serving,
     start_replica,
+    wait_ready,
 )
 
 from service.decisions import DecisionLog
+
+# Every test starts three real service processes (~30 s on a busy 2-core machine).
+pytestmark = pytest.mark.slow
 
 # Promotions must reach the other replica within this long: one poll interval plus the
 # time to load and verify a small model on a busy 2-core machine (our budget, no source).
@@ -37,14 +41,25 @@ PROPAGATION_S = SYNC_SECONDS + 10.0
 def pair(
     models_dir: Path, campaigns_file: Path, log_url: str, tmp_path: Path
 ) -> Iterator[tuple[Replica, Replica]]:
+    yield from _pair(models_dir, campaigns_file, log_url, tmp_path)
+
+
+@pytest.fixture
+def sqlite_pair(
+    models_dir: Path, campaigns_file: Path, sqlite_log_url: str, tmp_path: Path
+) -> Iterator[tuple[Replica, Replica]]:
+    yield from _pair(models_dir, campaigns_file, sqlite_log_url, tmp_path)
+
+
+def _pair(
+    models_dir: Path, campaigns_file: Path, log_url: str, tmp_path: Path
+) -> Iterator[tuple[Replica, Replica]]:
     a = start_replica("a", models_dir, campaigns_file, log_url, tmp_path)
+    # B runs two worker processes (`upshot serve --workers 2`): three processes in all.
+    b = start_replica("b", models_dir, campaigns_file, log_url, tmp_path, workers=2)
     try:
-        # B runs two worker processes (`upshot serve --workers 2`): three processes in all.
-        b = start_replica("b", models_dir, campaigns_file, log_url, tmp_path, workers=2)
-    except BaseException:
-        a.stop()
-        raise
-    try:
+        wait_ready(a)
+        wait_ready(b)
         yield a, b
     finally:
         a.stop()
@@ -97,9 +112,10 @@ def test_same_request_on_two_replicas_is_one_decision(
 
 
 def test_promotion_and_reload_through_one_replica_reach_the_other(
-    pair: tuple[Replica, Replica], campaigns_file: Path
+    sqlite_pair: tuple[Replica, Replica], campaigns_file: Path
 ) -> None:
-    a, b = pair
+    # Propagation goes through the shared registry and campaign file, not the log.
+    a, b = sqlite_pair
     assert serving(a)[CAMPAIGN] == serving(b)[CAMPAIGN] == f"{MODEL}@v0001"
     promoted = a.client.post(
         f"/v1/admin/models/{MODEL}/promote", json={"version": "v0002", "reason": "test"}
@@ -122,7 +138,6 @@ def test_promotion_and_reload_through_one_replica_reach_the_other(
     assert serving(a)["winback"] == f"{MODEL}@v0002"
 
 
-@pytest.mark.slow
 def test_sigkill_under_concurrent_load_loses_no_acknowledged_decision(
     pair: tuple[Replica, Replica], log_url: str
 ) -> None:
