@@ -87,11 +87,13 @@ def run(args: argparse.Namespace) -> int:
             bound, audience, args.out, log, rank=args.rank, capacity=args.capacity,
             budget=args.budget, runner=runner, progress=None if args.quiet else _bar,
         )  # fmt: skip
+    from service.decisions.location import redact
+
     listed = "" if summary.listed is None else f", {summary.listed:,} on the list"
     print(
         f"decided {summary.rows:,} customers of {args.campaign} with "
         f"{bound.bundle.name}:{bound.bundle.version}{listed}; {summary.logged:,} decisions "
-        f"logged to {args.decision_log}; wrote {summary.out} in {summary.seconds:.1f} s"
+        f"logged to {redact(args.decision_log)}; wrote {summary.out} in {summary.seconds:.1f} s"
     )
     return 0
 
