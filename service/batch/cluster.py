@@ -86,9 +86,16 @@ class DaskRunner:
         head = (self.bound, self.audience)
         return self._ordered(fn, [(*head, part) for part in parts], args)
 
-    def keep(self, fn: Callable[..., Any], parts: Sequence[Part]) -> list[Any]:
-        submit = self.client.submit
-        return [submit(fn, self.bound, self.audience, part, pure=False) for part in parts]
+    def keep(
+        self, fn: Callable[..., Any], parts: Sequence[Part], advance: Callable[[int], None]
+    ) -> list[Any]:
+        held = []
+        for part in parts:
+            future = self.client.submit(fn, self.bound, self.audience, part, pure=False)
+            rows = max(part.rows, 0)  # a CSV's length is unknown until it is read
+            future.add_done_callback(lambda _, rows=rows: advance(rows))
+            held.append(future)
+        return held
 
     def over(self, fn: Callable[..., T], handles: Sequence[Any], *args: Any) -> Iterator[T]:
         return self._ordered(fn, [(handle,) for handle in handles], args)

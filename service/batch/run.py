@@ -220,8 +220,11 @@ class Runner(Protocol):
         """``fn(bound, audience, part, *args)`` for each part."""
         ...
 
-    def keep(self, fn: Callable[..., Any], parts: Sequence[Part]) -> list[Any]:
-        """``fn(bound, audience, part)`` for each part, kept where it ran; handles."""
+    def keep(
+        self, fn: Callable[..., Any], parts: Sequence[Part], advance: Callable[[int], None]
+    ) -> list[Any]:
+        """``fn(bound, audience, part)`` for each part, kept where it ran; handles.
+        ``advance(rows)`` is called as each part is done."""
         ...
 
     def over(self, fn: Callable[..., T], handles: Sequence[Any], *args: Any) -> Iterator[T]:
@@ -239,8 +242,14 @@ class InProcess:
     def map(self, fn: Callable[..., T], parts: Sequence[Part], *args: Any) -> Iterator[T]:
         return (fn(self.bound, self.audience, part, *args) for part in parts)
 
-    def keep(self, fn: Callable[..., Any], parts: Sequence[Part]) -> list[Any]:
-        return [fn(self.bound, self.audience, part) for part in parts]
+    def keep(
+        self, fn: Callable[..., Any], parts: Sequence[Part], advance: Callable[[int], None]
+    ) -> list[Any]:
+        held = []
+        for part in parts:
+            held.append(fn(self.bound, self.audience, part))
+            advance(sum(len(d) for d in getattr(held[-1], "chunks", ())))
+        return held
 
     def over(self, fn: Callable[..., T], handles: Sequence[Any], *args: Any) -> Iterator[T]:
         return (fn(handle, *args) for handle in handles)
@@ -309,13 +318,12 @@ def _ranked(
     budget: float | None,
 ) -> tuple[int, int, int]:  # fmt: skip
     advance = bar("deciding", count_rows(parts))
-    held = run.keep(decide_part, parts)
+    held = run.keep(decide_part, parts, advance)
     ids: list[str] = []
     batches: list[DecisionBatch] = []
     for inputs in run.over(cut_inputs, held):
         ids.extend(inputs.ids)
         batches.extend(inputs.batches)
-        advance(len(inputs.ids))
     ranking = rank_chunks(bound, ids, batches, capacity=capacity, budget=budget)
     del batches
     advance = bar("logging", len(ids))
