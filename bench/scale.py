@@ -8,7 +8,9 @@ demo data) and an audience of ``--rows`` simulated customers in Parquet parts. T
 ``upshot score DATA --rank --capacity N`` as a child process per set-up (one process or
 ``--dask local`` with 2 workers; SQLite or PostgreSQL log), each into a fresh log, and
 prints wall time (process start-up included), the run's own time (``score_file``, as the
-command reports it), rows per second of the run and peak memory (RSS of the command, and of the
+command reports it), the CPU seconds of the command and every process it started (less
+sensitive to a busy machine than wall time; last sample, 0.1 s), rows per second of the
+run and peak memory (RSS of the command, and of the
 command with every process it started, Dask workers included, sampled every 0.1 s).
 Last, the log's own insert rate per backend: decisions in column form (10,000 per
 append) into a fresh log. Target (issue 9): 1M decided, ranked and logged in <= 60 s,
@@ -64,18 +66,19 @@ def main() -> None:
           f"parts; --rank --capacity {args.capacity:,}; machine: {os.cpu_count()} cores, "
           "shared with other work while measured")  # fmt: skip
     print()
-    print(f"| {'set-up':<24} | {'log':<10} | {'wall s':>7} | {'run s':>6} | {'rows/s':>9} | "
-          f"{'peak RSS cmd':>12} | {'peak RSS all':>12} |")  # fmt: skip
-    print(f"|{'-' * 26}|{'-' * 12}|{'-' * 9}|{'-' * 8}|{'-' * 11}|{'-' * 14}|{'-' * 14}|")
+    print(f"| {'set-up':<24} | {'log':<10} | {'wall s':>7} | {'run s':>6} | {'CPU s':>6} | "
+          f"{'rows/s':>9} | {'peak RSS cmd':>12} | {'peak RSS all':>12} |")  # fmt: skip
+    print(f"|{'-' * 26}|{'-' * 12}|{'-' * 9}|{'-' * 8}|{'-' * 8}|{'-' * 11}|{'-' * 14}|"
+          f"{'-' * 14}|")  # fmt: skip
     for backend in backends:
         for mode in modes:
             log, drop = _fresh_log(backend, work, args.postgres)
             try:
-                wall, run_s, rss_cmd, rss_all = _run(models, campaigns, data, log, mode,
+                wall, run_s, cpu_s, rss_cmd, rss_all = _run(models, campaigns, data, log, mode,
                                               args.capacity, work)  # fmt: skip
             finally:
                 drop()
-            print(f"| {mode:<24} | {backend:<10} | {wall:>7.1f} | {run_s:>6.1f} | "
+            print(f"| {mode:<24} | {backend:<10} | {wall:>7.1f} | {run_s:>6.1f} | {cpu_s:>6.1f} | "
                   f"{args.rows / run_s:>9,.0f} | "
                   f"{rss_cmd / 2**20:>9,.0f} MB | {rss_all / 2**20:>9,.0f} MB |")  # fmt: skip
     print()
@@ -147,7 +150,7 @@ def _fresh_log(backend: str, work: Path, admin_url: str | None) -> tuple[str, ob
 
 def _run(
     models: Path, campaigns: Path, data: Path, log: str, mode: str, capacity: int, work: Path
-) -> tuple[float, float, int, int]:
+) -> tuple[float, float, float, int, int]:
     out = work / "ranked.parquet"
     command = [
         sys.executable, "-m", "service.cli", "score", str(data), "--campaign", CAMPAIGN,
@@ -161,10 +164,14 @@ def _run(
     process = subprocess.Popen(command, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     parent = psutil.Process(process.pid)
     peak_cmd = peak_all = 0
+    cpu: dict[int, float] = {}  # last CPU seconds seen per process of the tree
     while process.poll() is None:
         try:
             tree = [parent, *parent.children(recursive=True)]
             rss = [p.memory_info().rss for p in tree]
+            for p in tree:
+                times = p.cpu_times()
+                cpu[p.pid] = times.user + times.system
         except psutil.Error:
             rss = []
         if rss:
@@ -177,7 +184,7 @@ def _run(
     text = stdout.decode().strip()
     print(f"  ({mode}): {text}", file=sys.stderr)
     run_s = float(re.search(r" in ([0-9.]+) s$", text).group(1))  # type: ignore[union-attr]
-    return wall, run_s, peak_cmd, peak_all
+    return wall, run_s, sum(cpu.values()), peak_cmd, peak_all
 
 
 def _insert_rate(models: Path, campaigns: Path, location: str) -> float:
