@@ -36,10 +36,9 @@ def register(subparsers: Any) -> None:
 
 def run(args: argparse.Namespace) -> int:
     """Export and print how to train on the table."""
-    from service.loop import export_training_table, read_logged
+    from service.loop import export_from_log
 
-    logged = read_logged(args.log, args.campaign, since=args.since, until=args.until)
-    result = export_training_table(logged, args.out)
+    result = export_from_log(args.log, args.campaign, args.out, since=args.since, until=args.until)
     p = result.provenance
     print(
         f"wrote {result.rows} decisions of {args.campaign} ({p['first_decision_at']} .. "

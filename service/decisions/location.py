@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass, field
-from pathlib import Path
+from os import PathLike
 from typing import Any
 from urllib.parse import parse_qsl, urlencode, urlsplit, urlunsplit
 
@@ -25,7 +25,7 @@ class Location:
     options: dict[str, Any] = field(default_factory=dict)
 
 
-def parse_location(value: str | Path) -> Location:
+def parse_location(value: str | PathLike[str]) -> Location:
     """Tell a SQLite path (``path`` or ``sqlite:///path``) from a ``postgresql://`` URL.
 
     Raises :class:`ConfigError` for an in-memory database, another URL scheme, or a

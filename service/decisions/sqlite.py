@@ -150,9 +150,9 @@ class SqliteLog(DecisionLog):
         finally:
             conn.close()
 
-    def _feature_names(
+    def _feature_types(
         self, campaign: str, since: str | None, until: str | None, with_outcome: bool
-    ) -> Iterable[str]:
+    ) -> Iterable[tuple[str, str]]:
         clauses, params = ["d.campaign = ?"], [campaign]
         for bound, op in ((since, ">="), (until, "<")):
             if bound is not None:
@@ -161,11 +161,11 @@ class SqliteLog(DecisionLog):
         if with_outcome:
             clauses.append("d.decision_id IN (SELECT decision_id FROM outcomes)")
         sql = (
-            "SELECT DISTINCT f.key FROM decisions d, json_each(d.features) f "
+            "SELECT DISTINCT f.key, f.type FROM decisions d, json_each(d.features) f "
             f"WHERE {' AND '.join(clauses)}"
         )
         with self._read() as tx:
-            return [row[0] for row in tx.rows(sql, params)]
+            return [(row[0], row[1]) for row in tx.rows(sql, params)]
 
     def _close_connections(self) -> None:
         with self._readers_lock:

@@ -18,6 +18,7 @@ from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import AbstractContextManager
 from dataclasses import dataclass
 from datetime import UTC, datetime
+from os import PathLike
 from types import TracebackType
 from typing import Any, Protocol
 
@@ -42,6 +43,12 @@ OutcomeKinds = Callable[[str, str], str | None]
 JOINED = (*COLUMNS, "outcome", "observed_at")
 """Columns :meth:`DecisionLog.iter_joined` can return: a decision's, and its outcome's."""
 
+# JSON value types as SQLite's json_each and PostgreSQL's jsonb_typeof name them.
+_JSON_TYPES = {
+    "integer": "number", "real": "number", "number": "number", "true": "boolean",
+    "false": "boolean", "boolean": "boolean", "text": "string", "string": "string",
+    "null": "null",
+}  # fmt: skip
 # Bound parameters per statement stay under SQLite's historical limit of 999.
 _CHUNK = 500
 _PROBE_TIMEOUT_S = 5.0
@@ -88,7 +95,9 @@ class DecisionLog(ABC):
         self._closed = False
 
     @staticmethod
-    def open(location: str | Any, *, group_limit: int = 1000, create: bool = True) -> DecisionLog:
+    def open(
+        location: str | PathLike[str], *, group_limit: int = 1000, create: bool = True
+    ) -> DecisionLog:
         """Open the log at a file path, ``sqlite:///<path>`` or ``postgresql://...``.
 
         Pending schema migrations are applied (see ``upshot log migrate``).
@@ -234,6 +243,22 @@ class DecisionLog(ABC):
             )
         return self._stream(sql, params, chunk)
 
+    def feature_types(
+        self,
+        campaign: str,
+        *,
+        since: datetime | str | None = None,
+        until: datetime | str | None = None,
+        with_outcome: bool = False,
+    ) -> dict[str, set[str]]:
+        """Every feature name logged in the window, with the JSON types its values take
+        (``number``, ``boolean``, ``string``, ``null``, ``other``); computed in the database."""
+        start, end = utc_text(since), utc_text(until)
+        types: dict[str, set[str]] = {}
+        for name, kind in self._feature_types(campaign, start, end, with_outcome):
+            types.setdefault(name, set()).add(_JSON_TYPES.get(kind, "other"))
+        return dict(sorted(types.items()))
+
     def feature_names(
         self,
         campaign: str,
@@ -243,9 +268,31 @@ class DecisionLog(ABC):
         with_outcome: bool = False,
     ) -> list[str]:
         """Every feature name logged in the window, sorted (computed in the database)."""
-        return sorted(
-            self._feature_names(campaign, utc_text(since), utc_text(until), with_outcome)
+        return list(
+            self.feature_types(campaign, since=since, until=until, with_outcome=with_outcome)
         )
+
+    def window_counts(
+        self,
+        campaign: str,
+        *,
+        since: datetime | str | None = None,
+        until: datetime | str | None = None,
+    ) -> tuple[int, int]:
+        """Decisions of a campaign in the window, and how many have an outcome."""
+        clauses, params = ["d.campaign = ?"], [campaign]
+        for bound, op in ((utc_text(since), ">="), (utc_text(until), "<")):
+            if bound is not None:
+                clauses.append(f"d.created_at {op} ?")
+                params.append(bound)
+        with self._read() as tx:
+            total, done = tx.rows(
+                "SELECT COUNT(*), COUNT(o.decision_id) FROM decisions d "
+                "LEFT JOIN outcomes o ON o.decision_id = d.decision_id "
+                f"WHERE {' AND '.join(clauses)}",
+                params,
+            )[0]
+        return int(total), int(done)
 
     def counts(self) -> StoreCounts:
         """How many decisions, outcomes and corrections the store holds."""
@@ -435,10 +482,10 @@ class DecisionLog(ABC):
         """Rows of a query in chunks, without holding them all."""
 
     @abstractmethod
-    def _feature_names(
+    def _feature_types(
         self, campaign: str, since: str | None, until: str | None, with_outcome: bool
-    ) -> Iterable[str]:
-        """Distinct feature names of a window."""
+    ) -> Iterable[tuple[str, str]]:
+        """Distinct (feature name, JSON type as the engine names it) of a window."""
 
     @abstractmethod
     def _close_connections(self) -> None:

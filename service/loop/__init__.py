@@ -14,6 +14,7 @@ from service.loop.export import (
     EXPORT_KIND,
     SIDECAR_SUFFIX,
     ExportResult,
+    export_from_log,
     export_training_table,
     read_provenance,
     sidecar_path,
@@ -21,7 +22,7 @@ from service.loop.export import (
 )
 from service.loop.gate import GATE_METHODS, GATE_RULES, ReplayGate, replay_gate
 from service.loop.lift import COVERAGE_GAP, LiftReport, campaign_lift
-from service.loop.logged import LoggedDecisions, read_logged, utc_text
+from service.loop.logged import LoggedDecisions, iter_logged, read_logged, utc_text
 from service.loop.plot import plot_lift
 from service.loop.replay import (
     REWARD_MODELS,
@@ -46,8 +47,10 @@ __all__ = [
     "ReplayResult",
     "campaign_lift",
     "candidate_actions",
+    "export_from_log",
     "export_training_table",
     "greedy_policy",
+    "iter_logged",
     "plot_lift",
     "read_logged",
     "read_provenance",

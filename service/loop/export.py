@@ -13,22 +13,30 @@ version's manifest (key ``source_decisions``).
 
 from __future__ import annotations
 
+import gzip
 import hashlib
 import json
+import os
+from collections import Counter
+from collections.abc import Mapping
 from dataclasses import dataclass
+from datetime import datetime
 from pathlib import Path
-from typing import Any
+from typing import IO, Any
 
 import pandas as pd
+import pyarrow as pa
+import pyarrow.parquet as pq
 
 from service.decisions.record import utc_now
-from service.errors import DataError
-from service.loop.logged import LoggedDecisions
+from service.errors import DataError, NotFoundError
+from service.loop.logged import LoggedDecisions, LogSource, iter_logged, open_log, utc_text
 
 __all__ = [
     "EXPORT_KIND",
     "SIDECAR_SUFFIX",
     "ExportResult",
+    "export_from_log",
     "export_training_table",
     "read_provenance",
     "sidecar_path",
@@ -70,8 +78,16 @@ def sidecar_path(table: Path | str) -> Path:
     return table.with_name(table.name + SIDECAR_SUFFIX)
 
 
-def _frame(done: LoggedDecisions) -> tuple[pd.DataFrame, list[str]]:
-    features = done.features()
+def _frame(
+    done: LoggedDecisions, types: Mapping[str, set[str]] | None = None
+) -> tuple[pd.DataFrame, list[str]]:
+    if types is None:
+        features = done.features()
+    else:  # the window's feature columns, typed alike in every chunk
+        names = list(types)
+        features = _typed(
+            pd.DataFrame.from_records(done.feature_rows(names), columns=names), types
+        )
     reserved = set(_FIXED) | {f"p_{label}" for label in done.labels}
     clash = sorted(set(features.columns) & reserved)
     if clash:
@@ -105,6 +121,81 @@ def _frame(done: LoggedDecisions) -> tuple[pd.DataFrame, list[str]]:
     return pd.concat([front, features, back], axis=1), [str(c) for c in features.columns]
 
 
+def _typed(features: pd.DataFrame, types: Mapping[str, set[str]]) -> pd.DataFrame:
+    """Numbers as float, true/false as nullable booleans, anything else as text."""
+    out: dict[str, pd.Series[Any]] = {}
+    for name in features.columns:
+        kinds = types.get(str(name), set()) - {"null"}
+        column = features[name]
+        if kinds <= {"number"}:
+            out[str(name)] = pd.to_numeric(column, errors="coerce").astype("float64")
+        elif kinds == {"boolean"}:
+            out[str(name)] = column.astype("boolean")
+        else:
+            text = column.map(str, na_action="ignore")  # missing values stay missing
+            out[str(name)] = text.astype("string")
+    return pd.DataFrame(out, index=features.index)
+
+
+class _TableWriter:
+    """Writes a table chunk by chunk to ``<path>.partial``, renamed into place on success,
+    so a failed export leaves no half table: CSV (``.gz`` compressed) through one handle,
+    Parquet through one writer with the first chunk's schema."""
+
+    def __init__(self, path: Path) -> None:
+        self.path = path
+        self.partial = path.with_name(path.name + ".partial")
+        self._parquet = path.name.lower().endswith(_PARQUET)
+        self._handle: IO[str] | None = None
+        self._writer: pq.ParquetWriter | None = None
+        self._schema: pa.Schema | None = None
+        path.parent.mkdir(parents=True, exist_ok=True)
+
+    def write(self, frame: pd.DataFrame) -> None:
+        if self._parquet:
+            table = pa.Table.from_pandas(frame, schema=self._schema, preserve_index=False)
+            if self._writer is None:
+                self._schema = table.schema
+                self._writer = pq.ParquetWriter(self.partial, table.schema)
+            self._writer.write_table(table)
+            return
+        first = self._handle is None
+        if self._handle is None:
+            gz = self.path.name.lower().endswith(".gz")
+            self._handle = (
+                gzip.open(self.partial, "wt", encoding="utf-8", newline="")
+                if gz
+                else self.partial.open("w", encoding="utf-8", newline="")
+            )
+        frame.to_csv(self._handle, header=first, index=False)
+
+    def close(self) -> None:
+        self._finish()
+        os.replace(self.partial, self.path)
+
+    def abort(self) -> None:
+        self._finish()
+        self.partial.unlink(missing_ok=True)
+
+    def _finish(self) -> None:
+        if self._writer is not None:
+            self._writer.close()
+        if self._handle is not None:
+            self._handle.close()
+
+
+def _check_format(path: Path) -> None:
+    if not path.name.lower().endswith(_PARQUET + _CSV):
+        raise DataError(f"Cannot tell the format of {path}; name it .csv, .csv.gz or .parquet.")
+
+
+def _no_outcome(campaign: str) -> DataError:
+    return DataError(
+        f"No decision of campaign {campaign!r} in this window has an outcome; "
+        "post outcomes first (POST /v1/outcomes or `upshot outcomes import`)."
+    )
+
+
 def export_training_table(logged: LoggedDecisions, path: Path | str) -> ExportResult:
     """Write the decisions of ``logged`` that have an outcome as a CSV or Parquet table.
 
@@ -115,36 +206,110 @@ def export_training_table(logged: LoggedDecisions, path: Path | str) -> ExportRe
         named like an export column.
     """
     path = Path(path)
-    name = path.name.lower()
-    if not name.endswith(_PARQUET + _CSV):
-        raise DataError(f"Cannot tell the format of {path}; name it .csv, .csv.gz or .parquet.")
+    _check_format(path)
     done = logged.with_outcomes()
     if not len(done):
-        raise DataError(
-            f"No decision of campaign {logged.campaign!r} in this window has an outcome; "
-            "post outcomes first (POST /v1/outcomes or `upshot outcomes import`)."
-        )
+        raise _no_outcome(logged.campaign)
     frame, features = _frame(done)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    if name.endswith(_PARQUET):
-        frame.to_parquet(path, index=False)
-    else:
-        frame.to_csv(path, index=False)
+    writer = _TableWriter(path)
+    try:
+        writer.write(frame)
+    except BaseException:
+        writer.abort()
+        raise
+    writer.close()
     first, last = done.first_last()
+    detail = done.detail
+    assert detail is not None  # _frame checked it
+    return _finish(
+        path, logged.campaign, (logged.since, logged.until), (first, last),
+        (len(done), len(logged) - len(done)), Counter(detail.model), set(detail.policy_hash),
+        features,
+    )  # fmt: skip
+
+
+def export_from_log(
+    log: LogSource,
+    campaign: str,
+    path: Path | str,
+    *,
+    since: datetime | str | None = None,
+    until: datetime | str | None = None,
+    chunk: int = 20_000,
+) -> ExportResult:
+    """:func:`export_training_table` straight from the store, streamed: the decisions of
+    the window that have an outcome are read and written ``chunk`` at a time, so memory
+    does not grow with the window. Feature columns and their types come from the store.
+    """
+    path = Path(path)
+    _check_format(path)
+    start, end = utc_text(since, "since"), utc_text(until, "until")
+    store, owned = open_log(log)
+    try:
+        total, with_outcome = store.window_counts(campaign, since=start, until=end)
+        if not total:
+            raise NotFoundError(
+                f"The log has no decisions of campaign {campaign!r} between "
+                f"{start or 'the beginning'} and {end or 'now'}; check the campaign id and "
+                "the window."
+            )
+        if not with_outcome:
+            raise _no_outcome(campaign)
+        types = store.feature_types(campaign, since=start, until=end, with_outcome=True)
+        writer = _TableWriter(path)
+        rows, models, policies = 0, Counter[str](), set[str]()
+        first = last = None
+        features: list[str] = list(types)
+        try:
+            parts = iter_logged(
+                store, campaign, since=start, until=end, with_outcome=True, chunk=chunk
+            )
+            for part in parts:
+                frame, features = _frame(part, types)
+                writer.write(frame)
+                detail = part.detail
+                assert detail is not None
+                rows += len(part)
+                models.update(detail.model)
+                policies.update(detail.policy_hash)
+                first, last = first or part.first_at, part.last_at
+        except BaseException:
+            writer.abort()
+            raise
+        writer.close()
+    finally:
+        if owned:
+            store.close()
+    return _finish(
+        path, campaign, (start, end), (first, last), (rows, total - rows), models, policies,
+        features,
+    )  # fmt: skip
+
+
+def _finish(
+    path: Path,
+    campaign: str,
+    window: tuple[str | None, str | None],
+    span: tuple[str | None, str | None],
+    counts: tuple[int, int],
+    models: Counter[str],
+    policies: set[str],
+    features: list[str],
+) -> ExportResult:
     provenance = {
         "kind": EXPORT_KIND,
-        "campaign": logged.campaign,
-        "since": logged.since,
-        "until": logged.until,
-        "first_decision_at": first,
-        "last_decision_at": last,
-        "decisions": len(done),
-        "without_outcome": len(logged) - len(done),
+        "campaign": campaign,
+        "since": window[0],
+        "until": window[1],
+        "first_decision_at": span[0],
+        "last_decision_at": span[1],
+        "decisions": counts[0],
+        "without_outcome": counts[1],
         "file": path.name,
         "sha256": _sha256(path),
         "exported_at": utc_now(),
-        "model_versions": frame["model_version"].value_counts().sort_index().to_dict(),
-        "policy_hashes": sorted(set(done.detail.policy_hash if done.detail else [])),
+        "model_versions": dict(sorted(models.items())),
+        "policy_hashes": sorted(policies),
         "training": {
             "treatment": "treatment",
             "outcome": "outcome",
@@ -155,7 +320,7 @@ def export_training_table(logged: LoggedDecisions, path: Path | str) -> ExportRe
     }
     sidecar = sidecar_path(path)
     sidecar.write_text(json.dumps(provenance, indent=2, sort_keys=True), encoding="utf-8")
-    return ExportResult(path, sidecar, len(done), len(logged) - len(done), provenance)
+    return ExportResult(path, sidecar, counts[0], counts[1], provenance)
 
 
 def read_provenance(table: Path | str) -> dict[str, Any] | None:

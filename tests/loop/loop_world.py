@@ -175,7 +175,7 @@ class started:  # noqa: N801 - used like a function: `async with started(app) as
         await self._lifespan.__aexit__(*exc)
 
 
-def make_app(models_dir: Path, campaigns_file: Path, log_path: Path) -> Any:
+def make_app(models_dir: Path, campaigns_file: Path, log_path: Path | str) -> Any:
     """The real service app on this world (scikit-learn scoring path, no API keys)."""
     from service.api.app import create_app
     from service.config import load_settings

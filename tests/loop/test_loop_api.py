@@ -18,6 +18,7 @@ from loop_world import (
     write_campaigns,
 )
 
+from service.decisions import DecisionLog
 from service.simulation import simulate
 
 pytestmark = pytest.mark.anyio
@@ -124,3 +125,65 @@ async def test_metrics_carry_drift_gauges(api) -> None:
     else:
         raise AssertionError("no drift gauge on /metrics after 10 s")
     assert 'kind="score",name="email"' in text
+
+
+@pytest.mark.parametrize("value", [2, -5, 0.5, 1e308, "1"])
+async def test_impossible_outcomes_are_refused_with_the_decision_named(api, value) -> None:
+    client, cols, y, _ = api
+    body = _payload(cols, y, [0, 1])
+    body["outcomes"][1]["outcome"] = value
+    reply = await client.post("/v1/outcomes", json=body)
+    assert reply.status_code == 422, reply.text
+    message = reply.json()["error"]["message"]
+    if not isinstance(value, str):  # a string is refused by the body's schema
+        assert cols["decision_id"][1] in message and f"{value:g}" in message
+    # Nothing of the request was stored: the valid first outcome is still new.
+    again = await client.post("/v1/outcomes", json=_payload(cols, y, [0]))
+    assert again.json()["recorded"] == 1
+
+
+async def test_an_admin_corrects_an_outcome_with_a_reason(api) -> None:
+    client, cols, y, _ = api
+    d_id = cols["decision_id"][3]
+    await client.post("/v1/outcomes", json=_payload(cols, y, [3]))
+    url = f"/v1/admin/outcomes/{d_id}/correction"
+    fixed = await client.post(url, json={"outcome": 1 - y[3], "reason": "wrong account"})
+    assert fixed.status_code == 200, fixed.text
+    body = fixed.json()
+    assert (body["previous"]["outcome"], body["outcome"]["outcome"]) == (y[3], 1 - y[3])
+    assert body["reason"] == "wrong account" and body["actor"].startswith("api:")
+    # The corrected value is now the recorded one: sending it again is a no-op.
+    resent = {"outcomes": [{"decision_id": d_id, "outcome": float(1 - y[3])}]}
+    assert (await client.post("/v1/outcomes", json=resent)).json()["unchanged"] == 1
+    impossible = await client.post(url, json={"outcome": 7, "reason": "typo"})
+    assert impossible.status_code == 422 and d_id in impossible.json()["error"]["message"]
+    no_reason = await client.post(url, json={"outcome": 1})
+    assert no_reason.status_code == 422
+    other = cols["decision_id"][4]
+    missing = await client.post(
+        f"/v1/admin/outcomes/{other}/correction", json={"outcome": 1, "reason": "late"}
+    )
+    assert (
+        missing.status_code == 404 and "no recorded outcome" in missing.json()["error"]["message"]
+    )
+
+
+async def test_the_service_runs_on_postgres(world, tmp_path, postgres_empty_url) -> None:
+    app = make_app(world.models_dir, write_campaigns(tmp_path / "c.toml"), postgres_empty_url)
+    sim = simulate("larkspur", 600, random_state=41)
+    async with started(app) as client:
+        assert (await client.get("/readyz")).status_code == 200
+        cols = await score_columns(client, sim, 41)
+        # A retried batch is the same decisions, logged once.
+        assert (await score_columns(client, sim, 41))["decision_id"] == cols["decision_id"]
+        action = np.array([ACTIONS[a] for a in cols["action"]])
+        y = draw_outcomes(sim, action, seed=42)
+        bad = _payload(cols, y, [0, 1])
+        bad["outcomes"][1]["outcome"] = 2
+        assert (await client.post("/v1/outcomes", json=bad)).status_code == 422
+        done = await client.post("/v1/outcomes", json=_payload(cols, y, range(len(y))))
+        assert done.json()["recorded"] == len(y)
+        body = (await client.get(f"/v1/campaigns/{CAMPAIGN}/lift")).json()
+        assert body["decisions"] == body["with_outcome"] == len(y)
+    with DecisionLog.open(postgres_empty_url) as log:
+        assert log.counts().decisions == len(y)
