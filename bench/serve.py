@@ -1,77 +1,175 @@
-"""Benchmark the scoring service over loopback against its ceilings.
+"""Benchmark the scoring service over loopback against its ceilings, in one run.
 
-One run, one uvicorn worker, 8 concurrent keep-alive connections:
-
-1. single-customer ``POST /v1/score`` throughput and p50/p99 latency against the
-   trivial ``GET /healthz`` of the same server (the ceiling of the HTTP stack);
+1. ``GET /healthz`` (the HTTP stack's ceiling) and ``POST /v1/score`` (one customer per
+   request, 20,000 distinct customers cycled) driven by ``wrk`` (Debian package ``wrk``;
+   a Lua script supplies the bodies), with 1 and with 2 worker processes
+   (``upshot serve --workers N``): throughput, p50 and p99, ratios side by side.
 2. ``POST /v1/score/batch`` and ``POST /v1/rank`` with 100,000 customers in column form
-   against the same model's in-process vectorised prediction (``predict_interval`` of
-   the compiled model on a DataFrame, the fastest in-process path; ``--sklearn`` also
-   times ``BootstrapUplift.predict_interval``). The ratio uses the fastest in-process
-   time, so it is conservative.
+   (1 worker): time, customers/s, and the server's peak resident memory above idle
+   during the request (``/proc/<pid>/clear_refs`` resets the peak, ``VmHWM`` reads it).
+   The model's share is timed in-process on the same 100,000 customers
+   (``predict_interval`` of the compiled model), so the rest is the service's.
+3. A ranked list of 1,000,000 candidates through the engine's chunk API
+   (``decide_chunk`` -> ``rank_chunks`` -> ``emit_columns`` -> the SQLite log, 100,000
+   per chunk), in a separate process: time, model share, peak memory. One request of a
+   million customers would exceed the service's default body and batch limits; this is
+   the path a file or Dask source drives.
 
-Targets (issue 4): single-score throughput >= 0.5x the trivial endpoint; batch >= 0.4x
-in-process. Every decision is committed to the SQLite decision log (WAL,
-``synchronous=FULL``) before its response is sent, as in production.
+Every decision is committed to the SQLite decision log (WAL, ``synchronous=FULL``)
+before its response is sent, as in production. Targets (issue 8): single score >= 0.5x
+the trivial endpoint, its p99 <= 3x the trivial p99; batch and rank >= 25,000
+customers/s with peak memory <= 300 MB above idle.
 
 Usage::
 
-    python bench/serve.py                      # trains a demo-sized gbm model first
-    python bench/serve.py --base linear        # a light model: overheads dominate
+    python bench/serve.py                      # trains the demo-sized gbm S-learner first
+    python bench/serve.py --base linear --bootstrap 3   # a light model: overheads dominate
     python bench/serve.py --models-dir models  # reuse a registry with a larkspur champion
 
-The load generator is a small asyncio HTTP/1.1 client (no third-party tool), run in this
-process while the server runs in its own; the machine has 2 cores, one for each.
+The machine has 2 cores; wrk and the server share them. Run it on a quiet machine, with
+``nice`` on a shared one, and read the ratios (measured side by side) before the rates.
 """
 
 from __future__ import annotations
 
 import argparse
-import asyncio
+import json
 import os
+import re
+import resource
+import shutil
 import socket
 import statistics
 import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Callable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
-import numpy as np
 import orjson
 import pandas as pd
 
 from service.registry import ModelRegistry
 from service.simulation import simulate
-from service.uplift.compiled import compile_model
 
 ROOT = Path(__file__).resolve().parents[1]
 CAMPAIGNS = ROOT / "campaigns" / "larkspur.toml"
 CAMPAIGN = "larkspur-renewal"
 MODEL = "larkspur"
+_UNITS = {"us": 1e-3, "ms": 1.0, "s": 1e3}
+Timings = dict[str, list[tuple[float, float]]]
 
 
 @dataclass
 class Load:
-    """What a load phase measured."""
+    """What one wrk phase measured."""
 
     name: str
-    requests: int
-    seconds: float
-    latencies: list[float]
+    rate: float
+    p50: float
+    p99: float
     errors: int
 
-    @property
-    def rate(self) -> float:
-        return self.requests / self.seconds
 
-    def quantile(self, q: float) -> float:
-        return float(np.quantile(self.latencies, q)) * 1e3 if self.latencies else float("nan")
+# -- wrk ---------------------------------------------------------------------------------
 
 
-# -- load generator ----------------------------------------------------------------------
+def _wrk(url: str, seconds: float, connections: int, script: Path | None, name: str) -> Load:
+    command = ["wrk", "-t1", f"-c{connections}", f"-d{seconds:g}s", "--latency", url]
+    if script is not None:
+        command[1:1] = ["-s", str(script)]
+    out = subprocess.run(command, check=True, capture_output=True, text=True).stdout
+    rate = float(re.search(r"Requests/sec:\s+([\d.]+)", out).group(1))  # type: ignore[union-attr]
+    quantiles = {
+        q: float(v) * _UNITS[unit]
+        for q, v, unit in re.findall(r"^\s+(50|99)%\s+([\d.]+)(us|ms|s)\s*$", out, re.M)
+    }
+    errors = sum(int(n) for n in re.findall(r"Non-2xx or 3xx responses: (\d+)", out))
+    errors += sum(int(n) for n in re.findall(r"(?:connect|read|write|timeout) (\d+)", out))
+    return Load(name, rate, quantiles["50"], quantiles["99"], errors)
+
+
+def _score_script(path: Path, n: int) -> Path:
+    """A wrk Lua script cycling through ``n`` single-customer request bodies."""
+    ids, frame = _customers(n, seed=11)
+    records = frame.astype(object).where(frame.notna(), None).to_dict("records")
+    lines = ["local bodies = {"]
+    for cid, features in zip(ids, records, strict=True):
+        body = orjson.dumps({"campaign": CAMPAIGN, "customer": {"id": cid, "features": features}})
+        lines.append(f"[==[{body.decode()}]==],")
+    lines += [
+        "}",
+        "local i = 0",
+        'local headers = {["Content-Type"] = "application/json"}',
+        "request = function()",
+        "  i = i % #bodies + 1",
+        '  return wrk.format("POST", "/v1/score", headers, bodies[i])',
+        "end",
+    ]
+    path.write_text("\n".join(lines), encoding="utf-8")
+    return path
+
+
+# -- the server ----------------------------------------------------------------------------
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port: int = s.getsockname()[1]
+        return port
+
+
+def _start_server(models_dir: Path, log: Path, port: int, workers: int) -> subprocess.Popen[bytes]:
+    env = {
+        **{k: v for k, v in os.environ.items() if not k.startswith("UPSHOT_")},
+        "UPSHOT_MODELS_DIR": str(models_dir),
+        "UPSHOT_CAMPAIGNS_FILE": str(CAMPAIGNS),
+        "UPSHOT_DECISION_LOG": str(log),
+        "UPSHOT_LOG_LEVEL": "warning",
+    }
+    command = [sys.executable, "-m", "service.commands.serve", "serve", "--port", str(port),
+               "--workers", str(workers)]  # fmt: skip
+    server = subprocess.Popen(command, env=env)
+    deadline = time.time() + 180
+    while time.time() < deadline:
+        if _ready(port) and (workers == 1 or len(_children(server.pid)) >= workers):
+            # every worker has answered at least once
+            if all(_ready(port) for _ in range(4 * workers)):
+                return server
+        if server.poll() is not None:
+            raise SystemExit("the server exited during start-up")
+        time.sleep(0.25)
+    server.terminate()
+    raise SystemExit("the server did not become ready within 180 s")
+
+
+def _ready(port: int) -> bool:
+    try:
+        with socket.create_connection(("127.0.0.1", port), timeout=5) as s:
+            s.sendall(_request("GET", "/readyz", None, port))
+            return b" 200 " in s.recv(64)
+    except OSError:
+        return False
+
+
+def _children(pid: int) -> list[int]:
+    found = []
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            try:
+                stat = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            if int(stat[1]) == pid:
+                found.append(int(entry.name))
+    return found
+
+
+def _stop(server: subprocess.Popen[bytes]) -> None:
+    server.terminate()
+    server.wait(timeout=60)
 
 
 def _request(method: str, path: str, body: bytes | None, port: int) -> bytes:
@@ -82,264 +180,273 @@ def _request(method: str, path: str, body: bytes | None, port: int) -> bytes:
     return head.encode() + body
 
 
-async def _read_response(reader: asyncio.StreamReader) -> tuple[int, bytes]:
-    head = await reader.readuntil(b"\r\n\r\n")
-    status = int(head[9:12])
-    length = 0
-    for line in head.split(b"\r\n")[1:]:
-        name, _, value = line.partition(b":")
-        if name.strip().lower() == b"content-length":
-            length = int(value)
-    body = await reader.readexactly(length) if length else b""
-    return status, body
+def _status_kb(pid: int, field: str) -> int:
+    for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+        if line.startswith(field + ":"):
+            return int(line.split()[1])
+    raise RuntimeError(f"{field} not in /proc/{pid}/status")
 
 
-async def _worker(
-    port: int,
-    next_request: Callable[[], bytes],
-    stop_at: float,
-    measure_from: float,
-    out: Load,
-) -> None:
-    reader, writer = await asyncio.open_connection("127.0.0.1", port)
-    try:
-        while (start := time.perf_counter()) < stop_at:
-            writer.write(next_request())
-            status, _ = await _read_response(reader)
-            end = time.perf_counter()
-            if start >= measure_from:
-                out.requests += 1
-                out.latencies.append(end - start)
-                out.errors += status != 200
-    finally:
-        writer.close()
-
-
-async def _load(
-    name: str, port: int, make: Callable[[], bytes], seconds: float, connections: int
-) -> Load:
-    warm = 1.0
-    begin = time.perf_counter()
-    out = Load(name, 0, seconds, [], 0)
-    await asyncio.gather(
-        *(
-            _worker(port, make, begin + warm + seconds, begin + warm, out)
-            for _ in range(connections)
-        )
-    )
-    return out
-
-
-async def _one(port: int, request: bytes) -> tuple[float, int, bytes]:
-    reader, writer = await asyncio.open_connection("127.0.0.1", port, limit=2**30)
-    try:
+def _timed(port: int, request: bytes, pid: int) -> tuple[float, float, int]:
+    """Seconds, peak RSS above idle (MB) of the server process, and the response size."""
+    idle = _status_kb(pid, "VmRSS")
+    Path(f"/proc/{pid}/clear_refs").write_text("5")  # reset VmHWM to the current RSS
+    with socket.create_connection(("127.0.0.1", port)) as s:
         start = time.perf_counter()
-        writer.write(request)
-        status, body = await _read_response(reader)
-        return time.perf_counter() - start, status, body
-    finally:
-        writer.close()
+        s.sendall(request)
+        reader = s.makefile("rb")
+        status = int(reader.readline().split()[1])
+        length = 0
+        while (line := reader.readline()) not in (b"\r\n", b""):
+            name, _, value = line.partition(b":")
+            if name.strip().lower() == b"content-length":
+                length = int(value)
+        body = reader.read(length)
+        seconds = time.perf_counter() - start
+    if status != 200:
+        raise SystemExit(f"request failed with {status}: {body[:300]!r}")
+    peak = _status_kb(pid, "VmHWM")
+    return seconds, (peak - idle) / 1024, len(body)
 
 
-# -- setup -------------------------------------------------------------------------------
+# -- data and model ------------------------------------------------------------------------
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        port: int = s.getsockname()[1]
-        return port
-
-
-def _train(models_dir: Path, n: int, base: str, n_bootstrap: int) -> None:
+def _train(models_dir: Path, n: int, learner: str, base: str, n_bootstrap: int) -> None:
     from service.training import train_model
 
     sim = simulate(MODEL, n=n, random_state=0)
-    _progress(f"training {MODEL}: T-learner, base={base}, {n} rows, {n_bootstrap} bootstraps ...")
+    _progress(f"training {MODEL}: learner={learner}, base={base}, {n} rows, "
+              f"{n_bootstrap} bootstraps ...")  # fmt: skip
     result = train_model(
         sim.to_frame(), treatment=sim.treatment_name, outcome=sim.outcome_name,
-        features=list(sim.X.columns), learner="t", base=base, name=MODEL,
+        features=list(sim.X.columns), learner=learner, base=base, name=MODEL,
         models_dir=models_dir, n_bootstrap=n_bootstrap, random_state=0,
     )  # fmt: skip
     ModelRegistry(models_dir).promote(MODEL, result.version, actor="bench", reason="benchmark")
 
 
-def _start_server(models_dir: Path, log: Path, port: int) -> subprocess.Popen[bytes]:
-    env = {
-        **os.environ,
-        "UPSHOT_MODELS_DIR": str(models_dir),
-        "UPSHOT_CAMPAIGNS_FILE": str(CAMPAIGNS),
-        "UPSHOT_DECISION_LOG": str(log),
-        "UPSHOT_LOG_LEVEL": "warning",
-    }
-    command = [
-        sys.executable, "-m", "uvicorn", "--factory", "service.api.app:app_from_env",
-        "--host", "127.0.0.1", "--port", str(port), "--workers", "1", "--no-access-log",
-        "--log-level", "warning",
-    ]  # fmt: skip
-    server = subprocess.Popen(command, env=env)
-    deadline = time.time() + 120
-    while time.time() < deadline:
-        try:
-            with socket.create_connection(("127.0.0.1", port), timeout=0.5) as s:
-                s.sendall(_request("GET", "/readyz", None, port))
-                if b" 200 " in s.recv(64):
-                    return server
-        except OSError:
-            pass
-        if server.poll() is not None:
-            raise SystemExit("the server exited during start-up")
-        time.sleep(0.25)
-    server.terminate()
-    raise SystemExit("the server did not become ready within 120 s")
-
-
 def _customers(n: int, seed: int) -> tuple[list[str], pd.DataFrame]:
     sim = simulate(MODEL, n=n, random_state=seed)
-    ids = [f"BENCH-{seed}-{i:07d}" for i in range(n)]
-    return ids, sim.X
+    return [f"BENCH-{seed}-{i:07d}" for i in range(n)], sim.X
 
 
-def _score_bodies(n: int) -> Iterator[bytes]:
-    ids, frame = _customers(n, seed=11)
-    records = frame.astype(object).where(frame.notna(), None).to_dict("records")
-    while True:
-        for cid, features in zip(ids, records, strict=True):
-            yield orjson.dumps(
-                {"campaign": CAMPAIGN, "customer": {"id": cid, "features": features}}
-            )
-
-
-def _columns_body(ids: list[str], frame: pd.DataFrame, extra: dict[str, object]) -> bytes:
-    columns: dict[str, object] = {"id": ids}
+def _columns(ids: list[str], frame: pd.DataFrame) -> dict[str, list[object]]:
+    columns: dict[str, list[object]] = {"id": list(ids)}
     for name in frame.columns:
         column = frame[name]
-        columns[name] = column.astype(object).where(column.notna(), None).tolist()
-    return orjson.dumps({"campaign": CAMPAIGN, "columns": columns, **extra})
+        columns[str(name)] = column.astype(object).where(column.notna(), None).tolist()
+    return columns
 
 
-# -- main --------------------------------------------------------------------------------
+# -- the million-row ranked list (child process) -------------------------------------------
+
+
+def _big_rank(models_dir: Path, log_path: Path, n: int, chunk: int, capacity: int) -> None:
+    """Rank ``n`` candidates through the chunk API; print a JSON line of what it took."""
+    from service.decisions import DecisionLog
+    from service.policy import load_campaigns
+    from service.scoring import bind_campaigns, decide_chunk, emit_columns, rank_chunks
+    from service.scoring.collector import paused
+
+    bound = bind_campaigns(ModelRegistry(models_dir), load_campaigns(CAMPAIGNS)).get(CAMPAIGN)
+    model = bound.model
+    spent = {"model": 0.0, "source": 0.0}
+    estimate = model.estimate
+
+    def timed_estimate(table, level):  # type: ignore[no-untyped-def]
+        start = time.perf_counter()
+        try:
+            return estimate(table, level)
+        finally:
+            spent["model"] += time.perf_counter() - start
+
+    model.estimate = timed_estimate  # type: ignore[method-assign]
+    base_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    log = DecisionLog.open(log_path)
+    start = time.perf_counter()
+
+    def work() -> int:
+        chunks = []
+        for k, first in enumerate(range(0, n, chunk)):
+            size = min(chunk, n - first)
+            t = time.perf_counter()  # the source (a file, in production) is not timed
+            ids, frame = _customers(size, seed=1000 + k)
+            columns = {k2: v for k2, v in _columns(ids, frame).items() if k2 != "id"}
+            spent["source"] += time.perf_counter() - t
+            table = bound.schema.table_from_columns(columns, size)
+            decided = decide_chunk(bound, ids, table, None, first_row=first)
+            # Keep what emitting needs; the per-row reason lists are for responses only.
+            chunks.append(replace(decided, batch=replace(decided.batch, reasons=[]),
+                                  input_reasons=[]))  # fmt: skip
+        all_ids = [i for c in chunks for i in c.ids]
+        ranking = rank_chunks(bound, all_ids, [c.batch for c in chunks],
+                              capacity=capacity, budget=None)  # fmt: skip
+        offset = 0
+        for decided in chunks:
+            log.append_columns_sync([emit_columns(decided, ranking, offset)])
+            offset += len(decided)
+        return int(ranking.result.listed.sum())
+
+    listed = paused(work)
+    seconds = time.perf_counter() - start - spent["source"]
+    log.close()
+    peak_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    print(json.dumps({"seconds": seconds, "model": spent["model"], "listed": listed,
+                      "peak_mb": peak_kb / 1024, "base_mb": base_kb / 1024}))  # fmt: skip
+
+
+# -- main ------------------------------------------------------------------------------------
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--models-dir", type=Path, help="registry with a larkspur champion")
     parser.add_argument("--train-rows", type=int, default=20000)
+    parser.add_argument("--learner", default="s", choices=["s", "t", "x", "dr"])
     parser.add_argument("--base", default="gbm", choices=["gbm", "linear"])
     parser.add_argument("--bootstrap", type=int, default=20)
     parser.add_argument("--seconds", type=float, default=10.0)
     parser.add_argument("--connections", type=int, default=8)
     parser.add_argument("--batch", type=int, default=100_000)
     parser.add_argument("--repeats", type=int, default=3)
-    parser.add_argument(
-        "--sklearn",
-        action="store_true",
-        help="also time the scikit-learn path in-process (slow for gbm models)",
-    )
+    parser.add_argument("--big", type=int, default=1_000_000, help="ranked list size; 0: skip")
+    parser.add_argument("--big-child", nargs=2, type=Path, help=argparse.SUPPRESS)
     args = parser.parse_args()
+    if args.big_child:
+        _big_rank(*args.big_child, n=args.big, chunk=100_000, capacity=50_000)
+        return
+    if shutil.which("wrk") is None:
+        raise SystemExit("wrk is not installed; apt-get install wrk (Debian package 'wrk').")
 
-    with tempfile.TemporaryDirectory(prefix="upshot-bench-") as tmp:
-        models_dir = args.models_dir or Path(tmp) / "models"
+    with tempfile.TemporaryDirectory(prefix="upshot-bench-") as tmp_dir:
+        tmp = Path(tmp_dir)
+        models_dir = args.models_dir or tmp / "models"
         if args.models_dir is None:
-            _train(models_dir, args.train_rows, args.base, args.bootstrap)
-        port = _free_port()
-        server = _start_server(models_dir, Path(tmp) / "decisions.sqlite3", port)
-        try:
-            _run(args, models_dir, port)
-        finally:
-            server.terminate()
-            server.wait(timeout=30)
+            _train(models_dir, args.train_rows, args.learner, args.base, args.bootstrap)
+        version = ModelRegistry(models_dir).champion(MODEL)
+        script = _score_script(tmp / "score.lua", 20000)
+        loads: dict[int, tuple[Load, Load]] = {}
+        for workers in (1, 2):
+            port = _free_port()
+            server = _start_server(models_dir, tmp / f"decisions-{workers}.sqlite3", port,
+                                   workers)  # fmt: skip
+            try:
+                loads[workers] = _single(args, port, script, workers)
+                if workers == 1:
+                    batch = _batches(args, port, server.pid)
+            finally:
+                _stop(server)
+        model_seconds = _in_process(models_dir, args)
+        big = _big(args, models_dir, tmp) if args.big else None
+    _report(args, version, loads, batch, model_seconds, big)
 
 
-def _run(args: argparse.Namespace, models_dir: Path, port: int) -> None:
-    bodies = _score_bodies(20000)
-    trivial = _request("GET", "/healthz", None, port)
+def _single(args: argparse.Namespace, port: int, script: Path, workers: int) -> tuple[Load, Load]:
+    url = f"http://127.0.0.1:{port}"
+    _progress(f"{workers} worker(s): GET /healthz and POST /v1/score, {args.seconds:g} s each")
+    _wrk(url + "/healthz", 2, args.connections, None, "warm-up")
+    health = _wrk(url + "/healthz", args.seconds, args.connections, None, "GET /healthz")
+    _wrk(url + "/v1/score", 2, args.connections, script, "warm-up")
+    score = _wrk(url + "/v1/score", args.seconds, args.connections, script, "POST /v1/score")
+    return health, score
 
-    def next_score() -> bytes:
-        return _request("POST", "/v1/score", next(bodies), port)
 
-    _progress(f"GET /healthz for {args.seconds:g} s ...")
-    health = asyncio.run(_load("GET /healthz", port, lambda: trivial, args.seconds,
-                               args.connections))  # fmt: skip
-    _progress(f"POST /v1/score for {args.seconds:g} s ...")
-    single = asyncio.run(_load("POST /v1/score", port, next_score, args.seconds,
-                               args.connections))  # fmt: skip
-
+def _batches(
+    args: argparse.Namespace, port: int, pid: int
+) -> dict[str, list[tuple[float, float]]]:
     ids, frame = _customers(args.batch, seed=23)
-    batch_body = _request("POST", "/v1/score/batch", _columns_body(ids, frame, {}), port)
-    rank_body = _request("POST", "/v1/rank", _columns_body(ids, frame, {"capacity": 5000}), port)
+    body = {"campaign": CAMPAIGN, "columns": _columns(ids, frame)}
+    batch = _request("POST", "/v1/score/batch", orjson.dumps(body), port)
+    ranked = _request("POST", "/v1/rank", orjson.dumps({**body, "capacity": 5000}), port)
     _progress(f"POST /v1/score/batch and /v1/rank with {args.batch:,} customers ...")
-    batch_times = [_timed(port, batch_body) for _ in range(args.repeats)]
-    rank_times = [_timed(port, rank_body) for _ in range(args.repeats)]
+    out: Timings = {"batch": [], "rank": []}
+    for _ in range(args.repeats):
+        out["batch"].append(_timed(port, batch, pid)[:2])
+        out["rank"].append(_timed(port, ranked, pid)[:2])
+    return out
+
+
+def _in_process(models_dir: Path, args: argparse.Namespace) -> list[float]:
+    from service.uplift.compiled import compile_model
 
     _progress("in-process predictions of the same model ...")
-    bundle = ModelRegistry(models_dir).load(MODEL)
-    models = {"compiled": compile_model(bundle.model)}
-    if args.sklearn:
-        models["scikit-learn"] = bundle.model
-    in_process: dict[str, list[float]] = {name: [] for name in models}
+    _, frame = _customers(args.batch, seed=23)
+    model = compile_model(ModelRegistry(models_dir).load(MODEL).model)
+    times = []
     for _ in range(args.repeats):
-        for name, model in models.items():
-            start = time.perf_counter()
-            model.predict_interval(frame, confidence=0.8)
-            in_process[name].append(time.perf_counter() - start)
+        start = time.perf_counter()
+        model.predict_interval(frame, confidence=0.8)
+        times.append(time.perf_counter() - start)
+    return times
 
-    _report(args, health, single, batch_times, rank_times, in_process, len(batch_body),
-            bundle.version)  # fmt: skip
+
+def _big(args: argparse.Namespace, models_dir: Path, tmp: Path) -> dict[str, float]:
+    _progress(f"a ranked list of {args.big:,} candidates through the chunk API ...")
+    command = [sys.executable, __file__, "--big", str(args.big), "--big-child",
+               str(models_dir), str(tmp / "big.sqlite3")]  # fmt: skip
+    out = subprocess.run(command, check=True, capture_output=True, text=True).stdout
+    result: dict[str, float] = json.loads(out.strip().splitlines()[-1])
+    return result
 
 
 def _progress(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
 
-def _timed(port: int, request: bytes) -> float:
-    seconds, status, body = asyncio.run(_one(port, request))
-    if status != 200:
-        raise SystemExit(f"batch request failed with {status}: {body[:300]!r}")
-    return seconds
-
-
 def _report(
     args: argparse.Namespace,
-    health: Load,
-    single: Load,
-    batch: list[float],
-    ranked: list[float],
-    in_process: dict[str, list[float]],
-    body_bytes: int,
-    version: str,
+    version: str | None,
+    loads: dict[int, tuple[Load, Load]],
+    batch: Timings,
+    model_seconds: list[float],
+    big: dict[str, float] | None,
 ) -> None:
     n = args.batch
-    rows = [
-        (health.name, f"{health.rate:,.0f} req/s", f"{health.quantile(0.5):.2f}",
-         f"{health.quantile(0.99):.2f}", health.errors),
-        (single.name, f"{single.rate:,.0f} req/s", f"{single.quantile(0.5):.2f}",
-         f"{single.quantile(0.99):.2f}", single.errors),
-    ]  # fmt: skip
     print()
-    print(f"model {MODEL}:{version}; {args.connections} keep-alive connections, one uvicorn "
-          f"worker, {args.seconds:g} s per phase, {os.cpu_count()} cores")  # fmt: skip
-    print(f"{'phase':<24}{'throughput':>16}{'p50 ms':>10}{'p99 ms':>10}{'errors':>8}")
-    for name, rate, p50, p99, errors in rows:
-        print(f"{name:<24}{rate:>16}{p50:>10}{p99:>10}{errors:>8}")
+    trained = (
+        f"{args.learner}-learner, {args.base}, {args.bootstrap} bootstraps"
+        if args.models_dir is None
+        else f"from {args.models_dir}"
+    )
+    print(f"model {MODEL}:{version} ({trained}); wrk -t1 -c{args.connections}, "
+          f"{args.seconds:g} s per phase; {os.cpu_count()} cores, load average "
+          f"{os.getloadavg()[0]:.1f}")  # fmt: skip
+    print(f"{'workers':<8}{'phase':<18}{'req/s':>10}{'p50 ms':>9}{'p99 ms':>9}{'errors':>8}"
+          f"{'x healthz':>11}{'p99 x':>8}")  # fmt: skip
+    for workers, (health, score) in loads.items():
+        for load in (health, score):
+            ratio = load.rate / health.rate
+            p99 = load.p99 / health.p99
+            print(f"{workers:<8}{load.name:<18}{load.rate:>10,.0f}{load.p50:>9.2f}"
+                  f"{load.p99:>9.2f}{load.errors:>8}{ratio:>10.2f}x{p99:>7.2f}x")  # fmt: skip
     print()
-    print(f"{n:,} customers, column form ({body_bytes / 1e6:.1f} MB request); median of "
-          f"{args.repeats}")  # fmt: skip
-    print(f"{'path':<40}{'seconds':>10}{'customers/s':>14}")
-    phases = [(f"in-process predict_interval, {name}", t) for name, t in in_process.items()]
-    phases += [("POST /v1/score/batch", batch), ("POST /v1/rank (capacity 5000)", ranked)]
-    for name, times in phases:
-        median = statistics.median(times)
-        print(f"{name:<40}{median:>10.2f}{n / median:>14,.0f}")
+    model = statistics.median(model_seconds)
+    print(f"{n:,} customers, column form, 1 worker; median of {args.repeats}; peak RSS is the "
+          "server's, above idle, worst of the runs")  # fmt: skip
+    print(f"{'path':<40}{'seconds':>9}{'customers/s':>13}{'peak MB':>9}{'w/o model /s':>14}")
+    print(f"{'in-process predict_interval (model)':<40}{model:>9.2f}{n / model:>13,.0f}")
+    for key, name in (
+        ("batch", "POST /v1/score/batch"),
+        ("rank", "POST /v1/rank (capacity 5000)"),
+    ):
+        seconds = statistics.median(t for t, _ in batch[key])
+        peak = max(m for _, m in batch[key])
+        rest = seconds - model
+        print(f"{name:<40}{seconds:>9.2f}{n / seconds:>13,.0f}{peak:>9.0f}"
+              f"{n / rest if rest > 0 else float('inf'):>14,.0f}")  # fmt: skip
+    if big is not None:
+        rest = big["seconds"] - big["model"]
+        print(f"{f'rank {args.big:,}, chunk API, in-process':<40}{big['seconds']:>9.2f}"
+              f"{args.big / big['seconds']:>13,.0f}{big['peak_mb'] - big['base_mb']:>9.0f}"
+              f"{args.big / rest:>14,.0f}")  # fmt: skip
+        print(f"  (model {big['model']:.1f} s of it; peak RSS {big['peak_mb']:.0f} MB in all, "
+              f"{big['base_mb']:.0f} MB after loading; {big['listed']:,.0f} listed)")  # fmt: skip
     print()
-    # The ceiling is the faster of the two in-process paths, so the ratio is conservative.
-    fastest = min(statistics.median(t) for t in in_process.values())
-    ratio_single = single.rate / health.rate
-    ratio_batch = fastest / statistics.median(batch)
-    ratio_rank = fastest / statistics.median(ranked)
-    print(f"single-score / trivial throughput: {ratio_single:.2f}x (target >= 0.5x)")
-    print(f"batch / in-process throughput:     {ratio_batch:.2f}x (target >= 0.4x)")
-    print(f"rank / in-process throughput:      {ratio_rank:.2f}x")
+    print(
+        "'w/o model /s': customers per second of the time left after the model's share "
+        "(the in-process prediction), i.e. what the service adds."
+    )
 
 
 if __name__ == "__main__":
