@@ -32,6 +32,7 @@ COMMANDS: tuple[str, ...] = (
     "drift",
     "plan",
     "demo_data",
+    "score",
     "log",
 )
 """Modules of ``service.commands`` that provide sub-commands, in help order."""

@@ -66,6 +66,8 @@ class Settings(BaseSettings):
     max_heavy_reads: int = Field(2, ge=1, le=64)
     lift_window_days: int = Field(30, ge=1, le=3660)
     compiled: bool = True
+    # Replicas: how often each one polls the registry and the campaign file (0: never).
+    sync_seconds: float = Field(2.0, ge=0.0, le=3600.0)
     log_level: Literal["debug", "info", "warning", "error"] = "info"
 
     @field_validator("decision_log")

@@ -6,6 +6,7 @@ The registry, the decision log and the campaign catalog are built once in the li
 
 from __future__ import annotations
 
+import asyncio
 import logging
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
@@ -31,6 +32,7 @@ from service.api.routes import (
     score,
 )
 from service.api.state import ServiceState
+from service.api.sync import ReplicaSync
 from service.config import Settings, load_settings
 from service.decisions import DecisionLog
 from service.monitoring import DriftCollector
@@ -99,7 +101,12 @@ def create_app(
                 "UPSHOT_API_KEYS before exposing it.",
                 settings.host,
             )
+        # Replicas: see what other replicas promote or reload (service/api/sync.py).
+        sync = ReplicaSync(state, settings.sync_seconds)
+        await sync.prime()
         await state.start()
+        sync.adopt(state.catalog)
+        poller = asyncio.create_task(sync.run()) if settings.sync_seconds > 0 else None
         logger.info(
             "serving campaigns %s; not servable: %s",
             sorted(state.catalog.bound),
@@ -108,6 +115,9 @@ def create_app(
         try:
             yield
         finally:
+            if poller is not None:
+                poller.cancel()
+                await asyncio.gather(poller, return_exceptions=True)
             state.close()
 
     app = FastAPI(
