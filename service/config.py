@@ -57,6 +57,7 @@ class Settings(BaseSettings):
     max_body_bytes: int = Field(64 * _MIB, ge=1024, le=1024 * _MIB)
     max_batch: int = Field(100_000, ge=1, le=1_000_000)
     compiled: bool = True
+    form: Literal["compact", "full"] = "compact"
     log_level: Literal["debug", "info", "warning", "error"] = "info"
 
     @field_validator("decision_log")

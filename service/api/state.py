@@ -77,6 +77,7 @@ class ServiceState:
                 self._registry,
                 self.settings.campaigns_file,
                 compile=self.settings.compiled,
+                form=self.settings.form,
             )
         )
 
@@ -89,6 +90,7 @@ class ServiceState:
                 self.settings.campaigns_file,
                 compile=self.settings.compiled,
                 previous=self._catalog,
+                form=self.settings.form,
             )
             self._set_catalog(catalog)
             return catalog
@@ -102,6 +104,7 @@ class ServiceState:
                 self.catalog.campaigns,
                 compile=self.settings.compiled,
                 previous=self._catalog,
+                form=self.settings.form,
             )
             self._set_catalog(catalog)
             return catalog

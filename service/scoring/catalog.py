@@ -20,7 +20,7 @@ from service.decisions import DecisionLog
 from service.errors import BundleError, NotFoundError, PolicyError
 from service.policy import Campaign, load_campaigns
 from service.registry import LoadedBundle, ModelRegistry
-from service.scoring.estimates import ServableModel, servable
+from service.scoring.estimates import ServableModel, load_servable
 from service.scoring.features import FeatureSchema
 
 __all__ = ["BoundCampaign", "Catalog", "bind_campaigns", "load_catalog", "readiness_problems"]
@@ -87,6 +87,10 @@ class Catalog:
         """Campaign -> (model name, version) for every served campaign."""
         return {cid: (b.bundle.name, b.bundle.version) for cid, b in self.bound.items()}
 
+    def forms(self) -> dict[str, str]:
+        """Campaign -> the form that scores it (``"compact"`` or ``"full"``)."""
+        return {cid: b.model.form for cid, b in self.bound.items()}
+
 
 _Loaded = tuple[LoadedBundle, ServableModel, FeatureSchema]
 
@@ -97,8 +101,10 @@ def load_catalog(
     *,
     compile: bool = True,
     previous: Catalog | None = None,
+    form: str = "compact",
 ) -> Catalog:
-    """Load the campaign file and bind each campaign to its model version.
+    """Load the campaign file and bind each campaign to its model version (served in
+    its compact form when it has one and ``form="compact"``).
 
     Raises
     ------
@@ -106,7 +112,7 @@ def load_catalog(
         The campaign file itself is invalid (the message names the campaign and key).
     """
     campaigns = load_campaigns(campaigns_file)
-    return bind_campaigns(registry, campaigns, compile=compile, previous=previous)
+    return bind_campaigns(registry, campaigns, compile=compile, previous=previous, form=form)
 
 
 def bind_campaigns(
@@ -115,6 +121,7 @@ def bind_campaigns(
     *,
     compile: bool = True,
     previous: Catalog | None = None,
+    form: str = "compact",
 ) -> Catalog:
     """Bind campaigns to their current model versions (champion unless pinned).
 
@@ -130,7 +137,7 @@ def bind_campaigns(
     problems: dict[str, str] = {}
     for cid, campaign in campaigns.items():
         try:
-            bound[cid] = _bind(registry, campaign, cache, compile)
+            bound[cid] = _bind(registry, campaign, cache, compile, form)
         except (NotFoundError, BundleError, PolicyError) as err:
             problems[cid] = str(err)
             logger.error("campaign %s cannot be served: %s", cid, err)
@@ -142,14 +149,13 @@ def _bind(
     campaign: Campaign,
     cache: dict[tuple[str, str], _Loaded],
     compile: bool,
+    form: str,
 ) -> BoundCampaign:
     version = registry.resolve(campaign.model, campaign.model_version)
     key = (campaign.model, version)
     if key not in cache:
-        bundle = registry.load(campaign.model, version)
-        schema = FeatureSchema.from_manifest(bundle.manifest["features"])
-        cache[key] = (bundle, servable(bundle.model, compile=compile), schema)
-        logger.info("loaded model %s:%s (%s path)", *key, cache[key][1].kind)
+        bundle, model = load_servable(registry, *key, form=form, compile=compile)
+        cache[key] = (bundle, model, FeatureSchema.from_manifest(bundle.manifest["features"]))
     bundle, model, schema = cache[key]
     arms = [str(a) for a in bundle.manifest["arms"]]
     return BoundCampaign(
