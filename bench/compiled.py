@@ -195,6 +195,7 @@ def _latency(micros: np.ndarray) -> str:
 
 
 def main() -> None:
+    global DESIGN
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--learners", default="t,dr")
     parser.add_argument("--design", default=DESIGN, help="simulation design (service.simulation)")
@@ -206,7 +207,6 @@ def main() -> None:
     parser.add_argument("--sk-batch", type=int, default=10_000, help="batch rows, sklearn")
     parser.add_argument("--quick", action="store_true", help="small sizes, for a smoke run")
     args = parser.parse_args()
-    global DESIGN
     DESIGN = args.design
     if args.quick:
         args.rows, args.bootstrap, args.singles, args.sk_singles, args.batch = (

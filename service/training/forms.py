@@ -41,10 +41,12 @@ HELD_OUT_SHARE = 0.25
 
 @dataclass(frozen=True)
 class FormBuild:
-    """The compact form (None when refused) and its manifest record."""
+    """The compact form (None when refused), its manifest record, and the candidate
+    that was measured (also when refused; for benchmarks, never saved)."""
 
     compiled: CompiledUplift | None
     record: dict[str, Any]
+    candidate: CompiledUplift | None = None
 
 
 def build_compact_form(
@@ -102,15 +104,20 @@ def build_compact_form(
     fidelity["held_out_rows"] = len(held)
     if not fidelity["passed"]:
         reason = "fidelity below the thresholds: " + "; ".join(fidelity["failures"])
-        return _refused(reason, method, fidelity)
+        return _refused(reason, method, fidelity, compact)
     record = {"status": "built", "method": method, "fidelity": fidelity}
-    return FormBuild(compact, record)
+    return FormBuild(compact, record, compact)
 
 
-def _refused(reason: str, method: dict[str, Any], fidelity: dict[str, Any] | None) -> FormBuild:
+def _refused(
+    reason: str,
+    method: dict[str, Any],
+    fidelity: dict[str, Any] | None,
+    candidate: CompiledUplift | None = None,
+) -> FormBuild:
     message = f"The compact serving form was refused and the full form will serve: {reason}"
     logger.warning("%s", message)
     record = {"status": "refused", "reason": reason, "method": method}
     if fidelity is not None:
         record["fidelity"] = fidelity
-    return FormBuild(None, record)
+    return FormBuild(None, record, candidate)
