@@ -1,12 +1,15 @@
-"""Scoring latency and throughput: scikit-learn path against the compiled path.
+"""Scoring latency and throughput: scikit-learn path, compiled full form, compact form.
 
 Trains each learner (gradient-boosted base, bootstrap intervals) on a seeded simulated
 campaign, then prints one table: per-row latency (median and p99 over single-customer
-calls, dict in, interval out), batch throughput, agreement of the two paths, and the
-one-off costs (compile_model, first kernel call with and without numba's cache).
+calls, dict in, interval out), batch throughput, agreement of the paths, and the
+one-off costs (compile_model, first kernel call with and without numba's cache). The
+compact serving form (the full-data fit plus a model of the bootstrap spread, as
+``upshot train`` makes it) is timed beside the compiled full form in the same run.
 
 Run: ``python bench/compiled.py`` (about 15 minutes on 2 cores; ``--quick`` for a
-smaller run). Timings depend on what else the machine is doing; run it on a quiet one.
+smaller run; ``--design larkspur --learners s`` for a model like the demo's: S-learner,
+two arms). Timings depend on what else the machine is doing; run it on a quiet one.
 """
 
 from __future__ import annotations
@@ -27,6 +30,7 @@ import pandas as pd
 from threadpoolctl import threadpool_limits
 
 from service.uplift import BootstrapUplift, make_learner
+from service.uplift.compact import bootstrap_sd, compact_form, fit_spread_models
 from service.uplift.compiled import CompiledUplift, compile_model
 
 FIRST_CALL = """
@@ -40,13 +44,16 @@ print(time.perf_counter() - start)
 """
 
 
+DESIGN = "groups"
+
+
 def _campaign(n: int, seed: int) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """Features, outcome and treatment of a seeded randomized campaign."""
     try:
         from service.simulation import simulate
     except ImportError:
         return _local_campaign(n, seed)
-    sim = simulate("groups", n, random_state=seed)
+    sim = simulate(DESIGN, n, random_state=seed)
     return sim.X, sim.y, sim.treatment
 
 
@@ -133,6 +140,23 @@ def _bench(name: str, args: argparse.Namespace) -> list[tuple[str, str, str]]:
         float(np.max(np.abs(a[: len(sample)] - b))) for a, b in zip(got, expected, strict=True)
     )
 
+    trained = compiled.encode(X)
+    with threadpool_limits(1):
+        spread = fit_spread_models(
+            trained, bootstrap_sd(compiled, trained), compiled.encoder_.categorical_mask, seed=0
+        )
+    compact = compact_form(model, spread)
+    compact.warm_up()
+    compact_row = _timings(compact.predict_row, rows)
+    start = time.perf_counter()
+    lean = compact.predict_interval(encoded, n_threads=1)
+    compact_encoded_1 = time.perf_counter() - start
+    start = time.perf_counter()
+    compact.predict_interval(pool)
+    compact_batch = time.perf_counter() - start
+    full_1 = compiled.predict_interval(encoded, n_threads=1)
+    point_gap = max(float(np.max(np.abs(lean[k] - full_1[k]))) for k in (0, 1))
+
     p = compiled.program
     size = f"{len(p.tree_roots)} trees, {len(p.node_head)} nodes"
     n = len(pool)
@@ -145,6 +169,16 @@ def _bench(name: str, args: argparse.Namespace) -> list[tuple[str, str, str]]:
         (name, "batch, compiled (frame, all cores)", _rate(n, compiled_batch)),
         (name, "batch, compiled (encoded, 1 thread)", _rate(n, compiled_encoded_1)),
         (name, "max |compiled - scikit-learn|", f"{gap:.1e}"),
+        (name, "compact form", f"{len(compact.program.tree_roots)} trees"),
+        (name, "row, compact (dict in)", _latency(compact_row)),
+        (name, "batch, compact (frame, all cores)", _rate(n, compact_batch)),
+        (name, "batch, compact (encoded, 1 thread)", _rate(n, compact_encoded_1)),
+        (
+            name,
+            "compact / full, encoded, 1 thread",
+            f"{compiled_encoded_1 / compact_encoded_1:.1f}x",
+        ),
+        (name, "max |compact - full| (uplift, control)", f"{point_gap:.1e}"),
         (name, "compile_model", f"{compile_s:.2f} s"),
         (name, "first call, empty numba cache", f"{cold_s:.2f} s"),
         (name, "first call, numba cache warm", f"{cached_s:.3f} s"),
@@ -161,8 +195,10 @@ def _latency(micros: np.ndarray) -> str:
 
 
 def main() -> None:
+    global DESIGN
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--learners", default="t,dr")
+    parser.add_argument("--design", default=DESIGN, help="simulation design (service.simulation)")
     parser.add_argument("--rows", type=int, default=20_000, help="training rows")
     parser.add_argument("--bootstrap", type=int, default=20)
     parser.add_argument("--singles", type=int, default=2000, help="single-row calls, compiled")
@@ -171,6 +207,7 @@ def main() -> None:
     parser.add_argument("--sk-batch", type=int, default=10_000, help="batch rows, sklearn")
     parser.add_argument("--quick", action="store_true", help="small sizes, for a smoke run")
     args = parser.parse_args()
+    DESIGN = args.design
     if args.quick:
         args.rows, args.bootstrap, args.singles, args.sk_singles, args.batch = (
             3000,
@@ -179,7 +216,7 @@ def main() -> None:
             20,
             5000,
         )
-    print(f"cpus={os.cpu_count()} load={os.getloadavg()[0]:.1f} (1-min average)")
+    print(f"cpus={os.cpu_count()} load={os.getloadavg()[0]:.1f} (1-min average), design {DESIGN}")
     lines = [line for name in args.learners.split(",") for line in _bench(name, args)]
     width = max(len(what) for _, what, _ in lines)
     print(f"| learner | {'measure':<{width}} | result |")

@@ -68,6 +68,7 @@ class Settings(BaseSettings):
     compiled: bool = True
     # Replicas: how often each one polls the registry and the campaign file (0: never).
     sync_seconds: float = Field(2.0, ge=0.0, le=3600.0)
+    form: Literal["compact", "full"] = "compact"
     log_level: Literal["debug", "info", "warning", "error"] = "info"
 
     @field_validator("decision_log")

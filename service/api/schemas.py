@@ -253,6 +253,11 @@ class ModelInfo(BaseModel):
     champion: str | None
     challenger: str | None
     serving: dict[str, str] = Field(description="Campaign -> version it is scored with.")
+    serving_forms: dict[str, str] = Field(
+        default_factory=dict,
+        description="Campaign -> form of that version it is scored with: 'compact' (the "
+        "full-data fit and a model of the bootstrap spread) or 'full' (every refit).",
+    )
     features: list[dict[str, Any]]
     arms: list[str]
     outcome_type: str | None
@@ -318,6 +323,9 @@ class Readiness(BaseModel):
     ready: bool
     problems: list[str]
     campaigns: dict[str, str] = Field(description="Campaign -> serving 'model@version'.")
+    forms: dict[str, str] = Field(
+        default_factory=dict, description="Campaign -> serving form, 'compact' or 'full'."
+    )
 
 
 class ErrorInfo(BaseModel):

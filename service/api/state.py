@@ -80,6 +80,7 @@ class ServiceState:
                 self._registry,
                 self.settings.campaigns_file,
                 compile=self.settings.compiled,
+                form=self.settings.form,
             )
         )
 
@@ -97,6 +98,7 @@ class ServiceState:
                 self.settings.campaigns_file,
                 compile=self.settings.compiled,
                 previous=self._catalog,
+                form=self.settings.form,
             )
             self._set_catalog(catalog)
             return catalog
@@ -110,6 +112,7 @@ class ServiceState:
                 self.catalog.campaigns,
                 compile=self.settings.compiled,
                 previous=self._catalog,
+                form=self.settings.form,
             )
             self._set_catalog(catalog)
             return catalog

@@ -165,6 +165,10 @@ def _show(args: argparse.Namespace) -> int:
     for label, g in data["groups"].items():
         print(f"               {label}: {g['rows']} rows, {stat} {g['outcome_mean']:.4g}")
     print(f"  features     {features}")
+    from service.registry.forms import pick_form
+
+    form, why = pick_form(m)
+    print(f"  serving form {form} ({why})")
     print("  metrics (cross-validated, out-of-fold):")
     print_metrics(m)
     print(f"  report       {registry.path(name, version) / 'report' / 'index.html'}")

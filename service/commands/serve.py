@@ -76,6 +76,13 @@ def _server_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--access-log", action="store_true", help="log every request (off by default)"
     )
+    parser.add_argument(
+        "--form",
+        choices=("compact", "full"),
+        help="model form to serve (env UPSHOT_FORM; default compact where a version has one, "
+        "else full): compact = the full-data fit plus a model of the bootstrap spread, "
+        "checked for fidelity at training; full = every bootstrap refit",
+    )
 
 
 def _overrides(args: argparse.Namespace) -> dict[str, Any]:
@@ -83,6 +90,7 @@ def _overrides(args: argparse.Namespace) -> dict[str, Any]:
         "models_dir": args.models_dir,
         "campaigns_file": args.campaigns,
         "decision_log": args.decision_log,
+        "form": args.form,
         "host": getattr(args, "host", None),
         "port": getattr(args, "port", None),
     }

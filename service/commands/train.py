@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -171,6 +172,14 @@ def run(args: argparse.Namespace) -> int:
     )
     print(f"cross-validated metrics ({m['metrics']['n_splits']}-fold, out-of-fold):")
     print_metrics(m)
+    compact = m["serving"]["forms"]["compact"]
+    if compact["status"] == "built":
+        print("serving form: compact (fidelity checks passed; see the report)")
+    else:
+        print(
+            f"WARNING: no compact serving form, the full form will serve: {compact['reason']}",
+            file=sys.stderr,
+        )
     if args.promote:
         ModelRegistry(args.models_dir).promote(
             name, result.version, actor=default_actor(), reason="promoted at training (--promote)"

@@ -47,7 +47,8 @@ REPORT_DIR = "report"
 
 @dataclass(frozen=True)
 class LoadedBundle:
-    """A verified model version: its manifest and the fitted model."""
+    """A verified model version: its manifest and the fitted model (None when it was
+    loaded without unpickling, e.g. to serve its compact form)."""
 
     name: str
     version: str
@@ -153,9 +154,12 @@ def verify_bundle(path: Path) -> dict[str, Any]:
     return manifest
 
 
-def load_bundle(path: Path) -> LoadedBundle:
-    """Verify the bundle at ``path`` and only then unpickle its model."""
+def load_bundle(path: Path, *, unpickle: bool = True) -> LoadedBundle:
+    """Verify the bundle at ``path`` and only then unpickle its model (``unpickle=False``
+    verifies only: the model is None)."""
     manifest = verify_bundle(path)
+    if not unpickle:
+        return LoadedBundle(manifest["name"], manifest["version"], path, manifest, None)
     check_libraries(manifest, str(path / MANIFEST_FILE))
     model = joblib.load(path / MODEL_FILE)
     if [str(a) for a in getattr(model, "arms_", [])] != [str(a) for a in manifest["arms"]]:

@@ -134,8 +134,11 @@ class ModelRegistry:
                     )
         return manifest
 
-    def load(self, name: str, version: str | None = None) -> LoadedBundle:
-        """Verify, then load a version (the champion when ``version`` is None).
+    def load(
+        self, name: str, version: str | None = None, *, unpickle: bool = True
+    ) -> LoadedBundle:
+        """Verify, then load a version (the champion when ``version`` is None);
+        ``unpickle=False`` stops after verification (the bundle's model is None).
 
         Raises
         ------
@@ -145,7 +148,7 @@ class ModelRegistry:
             The bundle fails verification; nothing was unpickled.
         """
         self.verify(name, version)
-        return load_bundle(self.path(name, version))
+        return load_bundle(self.path(name, version), unpickle=unpickle)
 
     def out_of_fold(self, name: str, version: str | None = None) -> OutOfFold:
         """The verified out-of-fold predictions of a version."""

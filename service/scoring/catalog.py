@@ -20,7 +20,7 @@ from service.decisions import DecisionLog
 from service.errors import BundleError, NotFoundError, PolicyError
 from service.policy import PILOT_MODEL, Campaign, load_campaigns
 from service.registry import LoadedBundle, ModelRegistry
-from service.scoring.estimates import ServableModel, servable
+from service.scoring.estimates import ServableModel, load_servable
 from service.scoring.features import FeatureSchema
 from service.scoring.pilot import OpenSchema, PilotModel
 
@@ -113,6 +113,10 @@ class Catalog:
             if not b.campaign.is_pilot
         }
 
+    def forms(self) -> dict[str, str]:
+        """Campaign -> the form that scores it (``"compact"`` or ``"full"``)."""
+        return {cid: b.model.form for cid, b in self.bound.items()}
+
 
 _Loaded = tuple[LoadedBundle, ServableModel, FeatureSchema]
 
@@ -123,8 +127,10 @@ def load_catalog(
     *,
     compile: bool = True,
     previous: Catalog | None = None,
+    form: str = "compact",
 ) -> Catalog:
-    """Load the campaign file and bind each campaign to its model version.
+    """Load the campaign file and bind each campaign to its model version (served in
+    its compact form when it has one and ``form="compact"``).
 
     Raises
     ------
@@ -132,7 +138,7 @@ def load_catalog(
         The campaign file itself is invalid (the message names the campaign and key).
     """
     campaigns = load_campaigns(campaigns_file)
-    return bind_campaigns(registry, campaigns, compile=compile, previous=previous)
+    return bind_campaigns(registry, campaigns, compile=compile, previous=previous, form=form)
 
 
 def bind_campaigns(
@@ -141,6 +147,7 @@ def bind_campaigns(
     *,
     compile: bool = True,
     previous: Catalog | None = None,
+    form: str = "compact",
 ) -> Catalog:
     """Bind campaigns to their current model versions (champion unless pinned).
 
@@ -158,7 +165,7 @@ def bind_campaigns(
     problems: dict[str, str] = {}
     for cid, campaign in campaigns.items():
         try:
-            bound[cid] = _bind(registry, campaign, cache, compile)
+            bound[cid] = _bind(registry, campaign, cache, compile, form)
         except (NotFoundError, BundleError, PolicyError) as err:
             problems[cid] = str(err)
             logger.error("campaign %s cannot be served: %s", cid, err)
@@ -170,16 +177,15 @@ def _bind(
     campaign: Campaign,
     cache: dict[tuple[str, str], _Loaded],
     compile: bool,
+    form: str,
 ) -> BoundCampaign:
     if campaign.model is None:
         return _pilot(campaign)
     version = registry.resolve(campaign.model, campaign.model_version)
     key = (campaign.model, version)
     if key not in cache:
-        bundle = registry.load(campaign.model, version)
-        schema = FeatureSchema.from_manifest(bundle.manifest["features"])
-        cache[key] = (bundle, servable(bundle.model, compile=compile), schema)
-        logger.info("loaded model %s:%s (%s path)", *key, cache[key][1].kind)
+        bundle, model = load_servable(registry, *key, form=form, compile=compile)
+        cache[key] = (bundle, model, FeatureSchema.from_manifest(bundle.manifest["features"]))
     bundle, model, schema = cache[key]
     arms = [str(a) for a in bundle.manifest["arms"]]
     return BoundCampaign(
@@ -213,6 +219,7 @@ def validated_catalog(
     *,
     compile: bool = True,
     previous: Catalog | None = None,
+    form: str = "compact",
 ) -> Catalog:
     """Load the campaign file for a reload, refusing it unless every campaign can serve.
 
@@ -225,7 +232,7 @@ def validated_catalog(
         The file is invalid, or a campaign's model is missing or fails verification;
         ``details["problems"]`` lists every problem.
     """
-    catalog = load_catalog(registry, campaigns_file, compile=compile, previous=previous)
+    catalog = load_catalog(registry, campaigns_file, compile=compile, previous=previous, form=form)
     problems = catalog_problems(catalog, registry)
     if problems:
         raise CatalogRefused(campaigns_file, problems)

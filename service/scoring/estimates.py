@@ -1,9 +1,13 @@
-"""What a servable model must provide, and the two ways upshot provides it.
+"""What a servable model must provide, and the ways upshot provides it.
 
 A fitted :class:`~service.uplift.BootstrapUplift` predicts a whole table through
 scikit-learn; its compiled form (``service.uplift.compiled``) evaluates the same trees
-and linear terms in one numba kernel, which also makes a single customer cheap. The
-service uses the compiled form when the model can be compiled and falls back otherwise.
+and linear terms in one numba kernel, which also makes a single customer cheap. Both are
+the *full* form: the full-data fit and every bootstrap refit. The *compact* form
+(``service.uplift.compact``), made at training time when its fidelity passed, evaluates
+the full-data fit and a small model of the bootstrap spread instead, and is loaded
+without unpickling anything. :func:`load_servable` serves the compact form when asked
+for and available, else the compiled full form, else scikit-learn.
 """
 
 from __future__ import annotations
@@ -16,9 +20,11 @@ import numpy as np
 import numpy.typing as npt
 
 from service.errors import BundleError
+from service.registry import LoadedBundle, ModelRegistry
+from service.registry.forms import load_compact, pick_form
 from service.scoring.features import FeatureTable
 
-__all__ = ["Estimates", "ServableModel", "servable"]
+__all__ = ["Estimates", "ServableModel", "load_servable", "servable"]
 
 logger = logging.getLogger(__name__)
 
@@ -44,6 +50,7 @@ class ServableModel(Protocol):
     """A model the service can score with."""
 
     kind: str
+    form: str  # "full" or "compact": which of the bundle's forms produces the numbers
 
     def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
         """Estimates for every row of a validated table (two-sided ``confidence``)."""
@@ -58,6 +65,7 @@ class _Bootstrap:
     """Scores through the fitted scikit-learn models (always available)."""
 
     kind = "scikit-learn"
+    form = "full"
 
     def __init__(self, model: Any) -> None:
         self.model = model
@@ -76,8 +84,11 @@ class _Compiled:
 
     kind = "compiled"
 
-    def __init__(self, compiled: Any) -> None:
+    def __init__(self, compiled: Any, form: str = "full") -> None:
         self.compiled = compiled
+        self.form = form
+        if form == "compact":
+            self.kind = "compact"
 
     def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
         tau, mu0, low, high = self.compiled.predict_interval(table.frame(), confidence=confidence)
@@ -106,6 +117,34 @@ def servable(model: Any, *, compile: bool = True) -> ServableModel:
             except BundleError as err:
                 logger.warning("model cannot be compiled (%s); using scikit-learn", err)
     return _Bootstrap(model)
+
+
+def load_servable(
+    registry: ModelRegistry,
+    name: str,
+    version: str,
+    *,
+    form: str = "compact",
+    compile: bool = True,
+) -> tuple[LoadedBundle, ServableModel]:
+    """Verify a version and load the form that serves it.
+
+    ``form="compact"`` serves the compact form when the bundle has one (the model file
+    is then verified but never unpickled) and the full form otherwise; ``form="full"``
+    always serves the full form, compiled unless ``compile=False``.
+    """
+    bundle = registry.load(name, version, unpickle=False)
+    chosen, why = pick_form(bundle.manifest, form)
+    if chosen == "compact":
+        compiled = load_compact(bundle.path, bundle.manifest)
+        compiled.warm_up()
+        model: ServableModel = _Compiled(compiled, form="compact")
+    else:
+        bundle = registry.load(name, version)
+        model = servable(bundle.model, compile=compile)
+    logger.info("model %s:%s serves its %s form (%s; %s path)", name, version, chosen, why,
+                model.kind)  # fmt: skip
+    return bundle, model
 
 
 def _2d(values: Any) -> Array:

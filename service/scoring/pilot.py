@@ -28,6 +28,7 @@ class PilotModel:
     """The servable stand-in of a pilot: no model, zero estimates for every arm."""
 
     kind = "pilot"
+    form = "pilot"  # no model form: every estimate is a zero placeholder
 
     def __init__(self, n_arms: int) -> None:
         self.n_arms = n_arms

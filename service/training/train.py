@@ -15,6 +15,7 @@ from threadpoolctl import threadpool_limits
 from tqdm import tqdm
 
 from service.errors import DataError
+from service.evaluation.fidelity import FidelityThresholds
 from service.evaluation.selection import CrossValidated, cross_validated_uplift, select_learner
 from service.registry import (
     MODEL_FILE,
@@ -28,12 +29,15 @@ from service.registry import (
     numeric_reference,
     write_out_of_fold,
 )
+from service.registry.forms import COMPACT_FILE, form_record
 from service.registry.state import utc_now
 from service.reporting import Economics, write_report
 from service.training._json import jsonable
 from service.training.fingerprint import data_fingerprint
+from service.training.forms import FormBuild, build_compact_form
 from service.training.validate import Propensity, TrainingData, prepare_training_data
 from service.uplift import LEARNERS, BootstrapUplift, UpliftLearner, make_learner
+from service.uplift.compact import save_form
 
 __all__ = ["AUTO_CANDIDATES", "TrainingResult", "train_model"]
 
@@ -56,6 +60,11 @@ class TrainingResult:
     def report(self) -> Path:
         """The HTML report of this version."""
         return self.path / REPORT_DIR / "index.html"
+
+    @property
+    def serving_form(self) -> str:
+        """The form served by default: ``"compact"``, or ``"full"`` when none was built."""
+        return str(self.manifest["serving"]["default"])
 
 
 def _learner(name: str, base: str, data: TrainingData, random_state: int) -> UpliftLearner:
@@ -159,12 +168,24 @@ def _manifest_body(
             "training_data": data_fingerprint(data),
             "reference": _reference(model, data),
             "economics": economics.to_dict(),
-            "serving": {"default": "joblib", "forms": {"joblib": {"artifact": MODEL_FILE}}},
             "libraries": library_versions(),
             "created_at": utc_now(),
         }
     )
     return body
+
+
+def _serving(staging: Path, form: FormBuild, n_bootstrap: int) -> dict[str, Any]:
+    """The manifest's ``serving`` block; writes the compact form when one was built."""
+    full = form_record(
+        "full", staging / MODEL_FILE, interval="normal bootstrap", n_bootstrap=n_bootstrap
+    )
+    compact = {"kind": "compact", **form.record}
+    if form.compiled is not None:
+        save_form(form.compiled, staging / COMPACT_FILE)
+        compact = form_record("compact", staging / COMPACT_FILE, **form.record)
+    default = "compact" if form.compiled is not None else "full"
+    return {"default": default, "forms": {"full": full, "compact": jsonable(compact)}}
 
 
 def train_model(
@@ -189,14 +210,18 @@ def train_model(
     source: str = "the data",
     threads: int | None = 1,
     source_decisions: Mapping[str, Any] | None = None,
+    form_thresholds: FidelityThresholds | None = None,
 ) -> TrainingResult:
     """Train, evaluate and save a new version of the model ``name``.
 
     Steps: validate the table; cross-validate the learner (every candidate for
     ``learner="auto"``, keeping the best pooled out-of-fold normalised Qini); fit the
-    chosen learner with bootstrap intervals on all rows; write the bundle (model,
-    out-of-fold predictions, report, manifest) atomically. All computation happens
-    before anything is written, and a failed write leaves no version behind.
+    chosen learner with bootstrap intervals on all rows; build the compact serving form
+    and measure its fidelity (:func:`~service.training.forms.build_compact_form`; below
+    the thresholds a warning is logged and the full form serves); write the bundle
+    (model, compact form, out-of-fold predictions, report, manifest) atomically. All
+    computation happens before anything is written, and a failed write leaves no
+    version behind.
 
     Parameters
     ----------
@@ -232,6 +257,9 @@ def train_model(
         Where the rows came from when they are an export of the decision log (campaign,
         window, count, SHA-256; see ``service.loop.export``); kept in the manifest under
         ``source_decisions``.
+    form_thresholds : FidelityThresholds, optional
+        The least fidelity the compact serving form must show against the full form
+        (default: Qini within 0.01, 98% action and 99% do-not-contact agreement).
 
     Returns
     -------
@@ -274,6 +302,10 @@ def train_model(
             sample_weight=data.sample_weight,
         )
         bar.update()
+        bar.set_description("building the compact serving form")
+        form = build_compact_form(
+            model, data, economics, random_state=random_state, thresholds=form_thresholds
+        )
         body = _manifest_body(
             data=data,
             model=model,
@@ -297,11 +329,13 @@ def train_model(
         def build(staging: Path, version: str) -> dict[str, Any]:
             joblib.dump(model, staging / MODEL_FILE, compress=3)
             write_out_of_fold(staging / OOF_FILE, oof)
+            body["serving"] = _serving(staging, form, n_bootstrap)
             write_report({**body, "name": name, "version": version}, oof, staging / REPORT_DIR)
             return body
 
-        version, path, manifest = registry.add_version(
-            name, build, {MODEL_FILE: "model", OOF_FILE: "out_of_fold"}
-        )
+        artifacts = {MODEL_FILE: "model", OOF_FILE: "out_of_fold"}
+        if form.compiled is not None:
+            artifacts[COMPACT_FILE] = "serving_form"
+        version, path, manifest = registry.add_version(name, build, artifacts)
         bar.update()
     return TrainingResult(name, version, path, manifest, model)

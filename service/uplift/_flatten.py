@@ -29,7 +29,7 @@ from sklearn.preprocessing import OneHotEncoder, StandardScaler
 
 from service.errors import BundleError
 
-__all__ = ["NODE_DTYPE", "Program", "ProgramBuilder"]
+__all__ = ["NODE_DTYPE", "SPREAD_BOOTSTRAP", "SPREAD_MODEL", "Program", "ProgramBuilder"]
 
 # Tree nodes are in depth-first pre-order (as scikit-learn grows them), so the left
 # child of node i is node i + 1 and only the right child is stored. "head" is -1 for a
@@ -41,6 +41,25 @@ UNIT_TREES, UNIT_LINEAR = 0, 1
 LINK_IDENTITY, LINK_LOGISTIC = 0, 1
 TERM_NUMERIC, TERM_INDICATOR, TERM_ONE_HOT = 0, 1, 2
 _N_CODES = 256  # categorical codes a tree bitset can hold
+# Where the interval's width comes from: the spread of replicates 1.. (the full form),
+# or a model of the log standard deviation held as replicate 1 (the compact form).
+SPREAD_BOOTSTRAP, SPREAD_MODEL = 0, 1
+_ARRAYS = {
+    "node_head": np.int32,
+    "node_right": np.int32,
+    "node_value": np.float64,
+    "bitsets": np.uint32,
+    "tree_roots": np.int32,
+    "unit_int": np.int32,
+    "unit_base": np.float64,
+    "term_int": np.int32,
+    "term_float": np.float64,
+    "table": np.float64,
+    "eval_unit": np.int32,
+    "eval_arm": np.float64,
+    "comb_int": np.int32,
+    "comb_coef": np.float64,
+}
 
 
 @dataclass(frozen=True)
@@ -48,7 +67,9 @@ class Program:
     """Flat arrays describing every model of every replicate, and how to combine them.
 
     Replicate 0 is the learner fitted on all rows; outputs ``0 .. n_arms - 1`` are the
-    uplift per arm and output ``n_arms`` is the control outcome.
+    uplift per arm and output ``n_arms`` is the control outcome. With ``spread ==
+    SPREAD_BOOTSTRAP`` replicates ``1 ..`` are bootstrap refits; with ``SPREAD_MODEL``
+    replicate 1 holds the log standard deviation of each arm's uplift.
     """
 
     n_features: int
@@ -68,6 +89,34 @@ class Program:
     eval_arm: np.ndarray  # (n_evals,) arm value written after the features, NaN if none
     comb_int: np.ndarray  # (n_comb, 3) int32: replicate, output, evaluation
     comb_coef: np.ndarray  # (n_comb,)
+    spread: int = SPREAD_BOOTSTRAP
+
+    def arrays(self) -> dict[str, np.ndarray]:
+        """Every field as an array (for a pickle-free ``.npz``)."""
+        sizes = [self.n_features, self.n_arms, self.n_replicates, self.spread]
+        return {"sizes": np.array(sizes, dtype=np.int64)} | {
+            name: getattr(self, name) for name in _ARRAYS
+        }
+
+    @classmethod
+    def from_arrays(cls, arrays: dict[str, np.ndarray], where: str) -> Program:
+        """The inverse of :meth:`arrays`; every index is checked, so a damaged file
+        cannot send the kernel outside its arrays or round a loop."""
+        try:
+            n_features, n_arms, n_replicates, spread = (int(v) for v in arrays["sizes"])
+            fields = {
+                name: np.ascontiguousarray(arrays[name], dtype=dtype)
+                for name, dtype in _ARRAYS.items()
+            }
+        except (KeyError, ValueError, TypeError) as err:
+            raise BundleError(
+                f"{where} is not a scoring program ({err}); retrain the model."
+            ) from err
+        program = cls(n_features, n_arms, n_replicates, **fields, spread=spread)
+        problem = _program_problem(program)
+        if problem:
+            raise BundleError(f"{where} is not a valid scoring program: {problem}; retrain.")
+        return program
 
 
 def _fail(model: Any, why: str) -> BundleError:
@@ -153,6 +202,7 @@ class ProgramBuilder:
     n_features: int
     n_arms: int
     n_replicates: int
+    spread: int = SPREAD_BOOTSTRAP
     _nodes: list[np.ndarray] = field(default_factory=list)
     _n_nodes: int = 0
     _bitsets: list[np.ndarray] = field(default_factory=list)
@@ -343,7 +393,60 @@ class ProgramBuilder:
             eval_arm=np.array([np.nan if arm < 0 else arm for (_, arm), _ in evals], dtype=float),
             comb_int=np.array([c[:3] for c in self._comb], dtype=np.int32).reshape(-1, 3),
             comb_coef=np.array([c[3] for c in self._comb], dtype=float),
+            spread=self.spread,
         )
+
+
+def _program_problem(p: Program) -> str:
+    """What makes ``p`` unsafe to evaluate, or ``""``."""
+    n_nodes, n_trees, n_units = len(p.node_head), len(p.tree_roots), len(p.unit_int)
+    if p.spread not in (SPREAD_BOOTSTRAP, SPREAD_MODEL) or min(p.n_features, p.n_arms) < 1:
+        return "bad sizes"
+    if not (len(p.node_right) == len(p.node_value) == n_nodes):
+        return "node arrays differ in length"
+    if p.bitsets.ndim != 2 or p.bitsets.shape[1] != 8:
+        return "bad bitsets"
+    if p.unit_int.shape != (n_units, 4) or p.unit_base.shape != (n_units,):
+        return "bad units"
+    if p.term_int.shape[1:] != (4,) or p.term_float.shape != (len(p.term_int), 4):
+        return "bad linear terms"
+    if p.comb_int.shape[1:] != (3,) or p.comb_coef.shape != (len(p.comb_int),):
+        return "bad combination terms"
+    if p.eval_arm.shape != p.eval_unit.shape:
+        return "bad evaluations"
+    index = np.arange(n_nodes)
+    internal = p.node_head >= 0
+    if ((p.node_head[internal] >> 2) > p.n_features).any():
+        return "a split reads a column the row does not have"
+    if (
+        (p.node_right[internal] <= index[internal] + 1) | (p.node_right >= n_nodes)[internal]
+    ).any():
+        return "a tree's child indices are not in depth-first order"
+    categorical = internal & ((p.node_head & 2) != 0)
+    words = p.node_value[categorical]
+    if ((words < 0) | (words >= len(p.bitsets)) | (words != np.floor(words))).any():
+        return "a categorical split points outside the bitsets"
+    if n_trees and ((p.tree_roots < 0) | (p.tree_roots >= n_nodes)).any():
+        return "a tree root is outside the nodes"
+    kind, link, first, stop = (p.unit_int[:, k] for k in range(4))
+    limit = np.where(kind == 0, n_trees, len(p.term_int))
+    if ((kind > 1) | (link > 1) | (first < 0) | (first > stop) | (stop > limit)).any():
+        return "a unit points outside its trees or terms"
+    linear = p.term_int
+    if ((linear[:, 0] < 0) | (linear[:, 0] >= p.n_features + 1)).any():
+        return "a linear term reads a column the row does not have"
+    if ((linear[:, 2] < 0) | (linear[:, 2] + linear[:, 3] > len(p.table))).any():
+        return "a one-hot term points outside its table"
+    if ((p.eval_unit < 0) | (p.eval_unit >= n_units)).any():
+        return "an evaluation names an unknown unit"
+    rep, out, ev = (p.comb_int[:, k] for k in range(3))
+    if ((rep < 0) | (rep > p.n_replicates) | (out < 0) | (out > p.n_arms)).any():
+        return "a combination term writes outside the outputs"
+    if ((ev < 0) | (ev >= len(p.eval_unit))).any():
+        return "a combination term reads an unknown evaluation"
+    if p.spread == SPREAD_MODEL and p.n_replicates != 1:
+        return "a spread model must be replicate 1 alone"
+    return ""
 
 
 def _preorder(nodes: np.ndarray) -> np.ndarray:

@@ -1,8 +1,11 @@
 """Compiled evaluation of a :class:`~service.uplift._flatten.Program` (numba).
 
-One call scores a block of encoded rows: every tree of every model of every bootstrap
-replicate, the learner's combination step, and the normal bootstrap interval. The
-kernels release the GIL, so callers may split a large batch across threads.
+One call scores a block of encoded rows: every tree of every model of every replicate,
+the learner's combination step, and the normal interval. The interval's half-width is
+``z`` times either the standard deviation over the bootstrap replicates (the full form)
+or ``exp`` of a fitted model of the log standard deviation (the compact form, whose
+replicate 1 holds that model per arm). The kernels release the GIL, so callers may split
+a large batch across threads.
 """
 
 from __future__ import annotations
@@ -112,12 +115,18 @@ def _unit_values(
 
 @_jit
 def _interval(
-    out: np.ndarray, z: float, tau: np.ndarray, low: np.ndarray, high: np.ndarray
+    out: np.ndarray, z: float, spread: int, tau: np.ndarray, low: np.ndarray, high: np.ndarray
 ) -> None:
-    """Point estimate (replicate 0) and normal bootstrap bounds (replicates 1..)."""
+    """Point estimate (replicate 0) and normal bounds: from the bootstrap replicates
+    (``spread == 0``), or from the log standard deviation in replicate 1 (``spread == 1``)."""
     n_replicates = out.shape[0] - 1
     for a in range(tau.shape[0]):
         tau[a] = out[0, a]
+        if spread == 1:
+            half = z * np.exp(out[1, a])
+            low[a] = out[0, a] - half
+            high[a] = out[0, a] + half
+            continue
         if n_replicates < 2:
             low[a] = np.nan
             high[a] = np.nan
@@ -126,10 +135,10 @@ def _interval(
         for b in range(1, n_replicates + 1):
             mean += out[b, a]
         mean /= n_replicates
-        spread = 0.0
+        squares = 0.0
         for b in range(1, n_replicates + 1):
-            spread += (out[b, a] - mean) ** 2
-        half = z * np.sqrt(spread / (n_replicates - 1))
+            squares += (out[b, a] - mean) ** 2
+        half = z * np.sqrt(squares / (n_replicates - 1))
         low[a] = out[0, a] - half
         high[a] = out[0, a] + half
 
@@ -153,6 +162,7 @@ def score_rows(
     comb_int: np.ndarray,
     comb_coef: np.ndarray,
     n_replicates: int,
+    spread: int,
     tau: np.ndarray,
     mu0: np.ndarray,
     low: np.ndarray,
@@ -160,8 +170,9 @@ def score_rows(
 ) -> None:
     """Fill ``tau``, ``mu0``, ``low``, ``high`` for the encoded rows ``X``.
 
-    Rows go in blocks of 64. ``z`` is the normal quantile of the interval; with fewer
-    than two bootstrap replicates the bounds are NaN.
+    Rows go in blocks of 64. ``z`` is the normal quantile of the interval; ``spread``
+    says where its width comes from (see :func:`_interval`); with ``spread == 0`` and
+    fewer than two bootstrap replicates the bounds are NaN.
     """
     n_rows, n_features = X.shape
     n_arms, n_evals = tau.shape[1], eval_unit.shape[0]
@@ -184,4 +195,4 @@ def score_rows(
                 out[comb_int[c, 0], comb_int[c, 1]] += comb_coef[c] * values[comb_int[c, 2], r]
             i = start + r
             mu0[i] = out[0, n_arms]
-            _interval(out, z, tau[i], low[i], high[i])
+            _interval(out, z, spread, tau[i], low[i], high[i])

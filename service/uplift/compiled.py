@@ -22,7 +22,8 @@ from sklearn.utils.validation import check_is_fitted
 
 from service.errors import BundleError, DataError
 from service.uplift._base import UpliftLearner
-from service.uplift._flatten import Program, ProgramBuilder
+from service.uplift._features import FeatureEncoder
+from service.uplift._flatten import SPREAD_BOOTSTRAP, Program, ProgramBuilder
 from service.uplift._kernels import score_rows
 from service.uplift._row_encoder import RowEncoder
 from service.uplift.bootstrap import BootstrapUplift
@@ -32,7 +33,7 @@ from service.uplift.t_learner import TLearner
 from service.uplift.transformed import TransformedOutcomeLearner
 from service.uplift.x_learner import XLearner
 
-__all__ = ["CompiledUplift", "RowEncoder", "compile_model"]
+__all__ = ["CompiledUplift", "RowEncoder", "add_learner", "compile_model"]
 
 Effects = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
 RowEffects = tuple[np.ndarray, float, np.ndarray, np.ndarray]
@@ -59,18 +60,43 @@ class CompiledUplift:
     arms_, control_, outcome_type_, feature_names_in_, encoder_
         As on the source model.
     n_bootstrap_ : int
-        Number of bootstrap replicates (0 for a bare learner: the bounds are NaN).
+        Number of bootstrap replicates (0 for a bare learner, whose bounds are NaN, and
+        for the compact form, whose bounds come from a model of the spread).
     """
 
-    def __init__(self, program: Program, source: UpliftLearner) -> None:
+    def __init__(
+        self,
+        program: Program,
+        *,
+        arms: list[Any],
+        control: Any,
+        outcome_type: str,
+        encoder: FeatureEncoder,
+    ) -> None:
         self.program = program
-        self.arms_ = list(source.arms_)
-        self.control_ = source.control_
-        self.outcome_type_ = source.outcome_type_
-        self.feature_names_in_ = source.feature_names_in_
-        self.encoder_ = source.encoder_
-        self.n_bootstrap_ = program.n_replicates
-        self.row_encoder = RowEncoder(source.encoder_)
+        self.arms_ = list(arms)
+        self.control_ = control
+        self.outcome_type_ = outcome_type
+        self.encoder_ = encoder
+        self.feature_names_in_ = np.array(encoder.names, dtype=object)
+        self.n_bootstrap_ = program.n_replicates if program.spread == SPREAD_BOOTSTRAP else 0
+        self.row_encoder = RowEncoder(encoder)
+
+    @classmethod
+    def like(cls, program: Program, source: Any) -> CompiledUplift:
+        """A compiled model with the arms, labels and encoder of the fitted ``source``."""
+        return cls(
+            program,
+            arms=list(source.arms_),
+            control=source.control_,
+            outcome_type=source.outcome_type_,
+            encoder=source.encoder_,
+        )
+
+    @property
+    def interval_method(self) -> str:
+        """``"bootstrap"`` (spread of the refits) or ``"spread_model"`` (compact form)."""
+        return "bootstrap" if self.program.spread == SPREAD_BOOTSTRAP else "spread_model"
 
     # -- encoding ------------------------------------------------------------------------
 
@@ -164,7 +190,7 @@ class CompiledUplift:
         score_rows(
             X, z, p.node_head, p.node_right, p.node_value, p.bitsets, p.tree_roots,
             p.unit_int, p.unit_base, p.term_int, p.term_float, p.table, p.eval_unit,
-            p.eval_arm, p.comb_int, p.comb_coef, p.n_replicates, *outputs,
+            p.eval_arm, p.comb_int, p.comb_coef, p.n_replicates, p.spread, *outputs,
         )  # fmt: skip
 
 
@@ -214,15 +240,16 @@ def compile_model(
         n_replicates=len(learners) - 1,
     )
     for replicate, learner in enumerate(learners):
-        _add_learner(builder, replicate, learner)
-    compiled = CompiledUplift(builder.build(), source)
+        add_learner(builder, replicate, learner)
+    compiled = CompiledUplift.like(builder.build(), source)
     if warm_up:
         compiled.warm_up()
     return compiled
 
 
-def _add_learner(builder: ProgramBuilder, replicate: int, learner: UpliftLearner) -> None:
-    """The learner's combination step as terms; replicates only need the uplift."""
+def add_learner(builder: ProgramBuilder, replicate: int, learner: UpliftLearner) -> None:
+    """Add the learner's combination step as terms of ``replicate``; only replicate 0
+    reports the control outcome (refits only need the uplift)."""
     n_arms = builder.n_arms
     control = replicate == 0  # the control outcome is reported for the full fit only
     kind = type(learner)

@@ -12,6 +12,7 @@ from scipy.stats import norm
 
 from service.decisions import DecisionLog
 from service.registry import ModelRegistry
+from service.registry.forms import load_compact, pick_form
 
 pytestmark = pytest.mark.anyio
 
@@ -96,9 +97,15 @@ async def test_uplift_and_bounds_equal_the_scikit_learn_model(
     # Reference outside the service: the bundle's fitted scikit-learn models through
     # BootstrapUplift.predict_interval, at the two-sided level 2c - 1 whose upper end is
     # the one-sided bound at the campaign's c = 0.90 (scipy's normal quantile 1.2816).
+    # When the version has a compact serving form, the service serves it: the same point
+    # estimates, and the bounds of the form's own file (checked against scikit-learn's
+    # spread models in tests/uplift/test_compact.py).
     ids, frame = customers(5, seed=8)
     bundle = ModelRegistry(models_dir).load(MODEL)  # type: ignore[arg-type]
     tau, mu0, low, high = bundle.model.predict_interval(frame, confidence=0.80)
+    if pick_form(bundle.manifest)[0] == "compact":
+        compact = load_compact(bundle.path, bundle.manifest)
+        _, _, low, high = compact.predict_interval(frame, confidence=0.80)
     arms = list(bundle.model.arms_)
     for i in range(5):
         decision = (

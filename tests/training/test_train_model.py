@@ -60,7 +60,7 @@ def test_manifest_carries_what_other_parts_rely_on(result: Any) -> None:
     assert m["features"] == [s.to_dict() for s in result.model.encoder_.specs]
     assert "customer_id" in m["training_data"]["ignored_columns"]
     assert m["learner"]["name"] == "t" and m["learner"]["base"] == "linear"
-    assert m["serving"]["forms"]["joblib"]["artifact"] == "model.joblib"
+    assert m["serving"]["forms"]["full"]["file"] == "model.joblib"
     assert m["economics"] == {"value": 1.0, "cost": {"call": 1.5, "email": 0.1}}
     assert m["created_at"].endswith("Z")
     for entry in m["artifacts"].values():

@@ -33,6 +33,6 @@ async def readyz(catalog: CatalogDep, registry: RegistryDep, log: LogDep) -> Rea
             "not_ready",
             f"Not ready: {problems[0]}"
             + (f" (and {len(problems) - 1} more)" if problems[1:] else ""),
-            {"problems": problems, "campaigns": serving},
+            {"problems": problems, "campaigns": serving, "forms": catalog.forms()},
         )
-    return Readiness(ready=True, problems=[], campaigns=serving)
+    return Readiness(ready=True, problems=[], campaigns=serving, forms=catalog.forms())

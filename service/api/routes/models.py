@@ -30,6 +30,7 @@ def _describe(catalog: Catalog, registry: ModelRegistry) -> ModelList:
         serving = {
             cid: version for cid, (model, version) in catalog.serving().items() if model == name
         }
+        forms = {cid: form for cid, form in catalog.forms().items() if cid in serving}
         champion = registry.champion(name)
         models.append(
             ModelInfo(
@@ -38,6 +39,7 @@ def _describe(catalog: Catalog, registry: ModelRegistry) -> ModelList:
                 champion=champion,
                 challenger=registry.challenger(name),
                 serving=serving,
+                serving_forms=forms,
                 **_schema(catalog, registry, name, champion),
             )
         )
