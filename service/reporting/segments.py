@@ -17,7 +17,7 @@ PROTECTED_HINTS = (
 
 SEGMENT_CAUTION = (
     "Segments describe who responded to the contact in this campaign; they are not a "
-    "licence to target. Check the features below against the protected attributes (and "
+    "licence to target. Check the features listed against the protected attributes (and "
     "their proxies) that local law forbids for this use, as in credit, insurance, "
     "housing and employment, and defer to local law and licensed practice."
 )
