@@ -25,6 +25,7 @@ COMMANDS: tuple[str, ...] = (
     "train",
     "models",
     "report",
+    "segments",
     "outcomes",
     "lift",
     "replay",

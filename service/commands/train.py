@@ -61,7 +61,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument(
         "--learner",
         default="auto",
-        choices=["auto", "t", "s", "x", "dr", "transformed"],
+        choices=["auto", "t", "s", "x", "dr", "r", "transformed"],
         help="uplift learner; auto picks the best cross-validated Qini (default: auto)",
     )
     parser.add_argument(
@@ -112,6 +112,13 @@ def register(subparsers: Any) -> None:
         "--promote", action="store_true", help="make the new version the champion right away"
     )
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
+    parser.add_argument(
+        "--no-tune",
+        dest="tune",
+        action="store_false",
+        help="keep the base models' fixed settings instead of choosing their capacity by "
+        "held-out loss",
+    )
     parser.set_defaults(handler=run)
 
 
@@ -157,6 +164,7 @@ def run(args: argparse.Namespace) -> int:
         source=str(args.data),
         threads=args.threads,
         source_decisions=provenance,
+        tune=args.tune,
     )
     m = result.manifest
     ignored = m["training_data"]["ignored_columns"]

@@ -10,6 +10,7 @@ import pandas as pd
 
 from service.reporting.economics import Economics
 from service.reporting.forms import forms_section
+from service.reporting.segments import segments_section
 from service.reporting.tables import ArmTables
 
 __all__ = ["CAUTION", "render_page"]
@@ -174,6 +175,7 @@ A normalised Qini of 0 is random targeting and 1 the best achievable ordering.</
 <h2>Per arm: tables behind the plots</h2>
 {arms}
 {forms_section(manifest)}
+{segments_section(manifest)}
 <h2>Training data</h2>
 {_groups(manifest)}
 <p class="meta">Fingerprint (SHA-256): {escape(manifest["training_data"]["sha256"])}</p>

@@ -16,6 +16,7 @@ from tqdm import tqdm
 
 from service.errors import DataError
 from service.evaluation.fidelity import FidelityThresholds
+from service.evaluation.segments import honest_segments
 from service.evaluation.selection import CrossValidated, cross_validated_uplift, select_learner
 from service.registry import (
     MODEL_FILE,
@@ -39,10 +40,10 @@ from service.training.validate import Propensity, TrainingData, prepare_training
 from service.uplift import LEARNERS, BootstrapUplift, UpliftLearner, make_learner
 from service.uplift.compact import save_form
 
-__all__ = ["AUTO_CANDIDATES", "TrainingResult", "train_model"]
+__all__ = ["AUTO_CANDIDATES", "TrainingResult", "segments_entry", "train_model"]
 
 # Candidates tried by learner="auto", in order of preference on ties (simplest first).
-AUTO_CANDIDATES = ("t", "s", "x", "dr", "transformed")
+AUTO_CANDIDATES = ("t", "s", "x", "dr", "r", "transformed")
 _SELECTION_RULE = "mean over arms of the pooled out-of-fold normalised Qini coefficient"
 
 
@@ -67,9 +68,16 @@ class TrainingResult:
         return str(self.manifest["serving"]["default"])
 
 
-def _learner(name: str, base: str, data: TrainingData, random_state: int) -> UpliftLearner:
+def _learner(
+    name: str, base: str, data: TrainingData, random_state: int, tune: bool = True
+) -> UpliftLearner:
     return make_learner(
-        name, base=base, control=data.control, arms=data.arms, random_state=random_state
+        name,
+        base=base,
+        control=data.control,
+        arms=data.arms,
+        random_state=random_state,
+        tune=tune,
     )
 
 
@@ -90,16 +98,18 @@ def _cross_validate(
     n_splits: int,
     random_state: int,
     bar: tqdm[Any],
+    tune: bool,
 ) -> tuple[str, CrossValidated, dict[str, float]]:
     common: dict[str, Any] = {
         "propensity": data.propensity,
         "sample_weight": data.sample_weight,
         "n_splits": n_splits,
         "random_state": random_state,
+        "importance": True,
     }
     if len(names) == 1:
         bar.set_description(f"cross-validating {names[0]}")
-        learner = _learner(names[0], base, data, random_state)
+        learner = _learner(names[0], base, data, random_state, tune)
         cv = cross_validated_uplift(
             learner, data.X, data.y, data.treatment, on_fold=lambda _: bar.update(), **common
         )
@@ -109,9 +119,66 @@ def _cross_validate(
         bar.set_description(f"cross-validating {name}")
         bar.update()
 
-    candidates = {name: _learner(name, base, data, random_state) for name in names}
+    candidates = {name: _learner(name, base, data, random_state, tune) for name in names}
     result = select_learner(candidates, data.X, data.y, data.treatment, on_fold=step, **common)
     return result.best, result.results[result.best], dict(result.scores)
+
+
+# Defaults of the segments stored with every version (``upshot segments`` reads them).
+SEGMENT_DEPTH, SEGMENT_MIN_SHARE = 3, 0.05
+
+
+def segments_entry(
+    data: TrainingData,
+    oof: Any,
+    *,
+    depth: int = SEGMENT_DEPTH,
+    min_share: float = SEGMENT_MIN_SHARE,
+    random_state: int = 0,
+) -> dict[str, Any]:
+    """The manifest's ``segments``: honest segments of the training rows, scored by the
+    out-of-fold predictions ``oof``, shape (n, n_arms) in the order of ``data.arms``
+    (see :func:`~service.evaluation.segments.honest_segments`)."""
+    found = honest_segments(
+        data.X,
+        data.y,
+        data.treatment,
+        oof,
+        arms=list(data.arms),
+        control=data.control,
+        depth=depth,
+        min_share=min_share,
+        sample_weight=data.sample_weight,
+        random_state=random_state,
+    )
+    return {
+        "method": (
+            "a tree per arm grown on a random half of the training rows (transformed "
+            "outcome), every figure measured on the other half; predicted uplift is "
+            "out of fold"
+        ),
+        "depth": depth,
+        "min_share": min_share,
+        "random_state": random_state,
+        "features": [str(c) for c in data.X.columns],
+        "segments": [segment.to_dict() for segment in found],
+    }
+
+
+def _in_data_order(cv: CrossValidated, data: TrainingData) -> Any:
+    return cv.oof[:, [cv.arms.index(arm) for arm in data.arms]]
+
+
+def _importance_entry(cv: CrossValidated) -> dict[str, Any]:
+    return {
+        "method": (
+            "out-of-fold permutation importance on the uplift score: each fold's model "
+            "rescores its held-out rows with one feature shuffled; score_change is the mean "
+            "absolute change of predicted uplift, qini_drop the fall of the pooled "
+            "normalised Qini (means over arms)"
+        ),
+        "features": cv.importance or {},
+    }
 
 
 def _reference(model: BootstrapUplift, data: TrainingData) -> dict[str, Any]:
@@ -153,6 +220,7 @@ def _manifest_body(
                 "name": learner,
                 "base": base,
                 "params": params,
+                "tuning": getattr(model.estimator_, "tuning_", {}),
                 "bootstrap": {"n_bootstrap": n_bootstrap, "random_state": random_state},
             },
             "selection": {"mode": mode, "rule": _SELECTION_RULE, "scores": scores},
@@ -166,6 +234,8 @@ def _manifest_body(
                 "qini_normalized_over_folds": {"mean": mean, "low": low, "high": high},
             },
             "training_data": data_fingerprint(data),
+            "segments": segments_entry(data, _in_data_order(cv, data), random_state=random_state),
+            "importance": _importance_entry(cv),
             "reference": _reference(model, data),
             "economics": economics.to_dict(),
             "libraries": library_versions(),
@@ -211,6 +281,7 @@ def train_model(
     threads: int | None = 1,
     source_decisions: Mapping[str, Any] | None = None,
     form_thresholds: FidelityThresholds | None = None,
+    tune: bool = True,
 ) -> TrainingResult:
     """Train, evaluate and save a new version of the model ``name``.
 
@@ -229,7 +300,7 @@ def train_model(
         The campaign, one row per customer.
     treatment, outcome, control, features, sample_weight, propensity
         See :func:`~service.training.validate.prepare_training_data`.
-    learner : {"auto", "t", "s", "x", "dr", "transformed"}
+    learner : {"auto", "t", "s", "x", "dr", "r", "transformed"}
     name : str
         Model name (1-64 letters, digits, ``_``, ``-``, ``.``).
     models_dir : path
@@ -260,6 +331,9 @@ def train_model(
     form_thresholds : FidelityThresholds, optional
         The least fidelity the compact serving form must show against the full form
         (default: Qini within 0.01, 98% action and 99% do-not-contact agreement).
+    tune : bool, default True
+        Choose the base models' capacity by held-out loss inside each fit (see
+        ``service.uplift._tuning``); False keeps the fixed default settings.
 
     Returns
     -------
@@ -288,10 +362,10 @@ def train_model(
     total = len(names) * n_splits + 2
     limits = threadpool_limits(limits=threads) if threads is not None else nullcontext()
     with limits, tqdm(total=total, disable=not progress, file=sys.stderr, unit="step") as bar:
-        best, cv, scores = _cross_validate(names, data, base, n_splits, random_state, bar)
+        best, cv, scores = _cross_validate(names, data, base, n_splits, random_state, bar, tune)
         bar.set_description(f"fitting {best} with {n_bootstrap} bootstrap refits")
         model = BootstrapUplift(
-            _learner(best, base, data, random_state),
+            _learner(best, base, data, random_state, tune),
             n_bootstrap=n_bootstrap,
             random_state=random_state,
         ).fit(

@@ -15,6 +15,7 @@ from service.uplift._base import UpliftLearner
 from service.uplift._features import FeatureEncoder, FeatureSpec
 from service.uplift.bootstrap import BootstrapUplift
 from service.uplift.dr_learner import DRLearner, dr_pseudo_outcomes
+from service.uplift.r_learner import RLearner, r_targets
 from service.uplift.s_learner import SLearner
 from service.uplift.t_learner import TLearner
 from service.uplift.transformed import TransformedOutcomeLearner
@@ -26,6 +27,7 @@ __all__ = [
     "DRLearner",
     "FeatureEncoder",
     "FeatureSpec",
+    "RLearner",
     "SLearner",
     "TLearner",
     "TransformedOutcomeLearner",
@@ -33,6 +35,7 @@ __all__ = [
     "XLearner",
     "dr_pseudo_outcomes",
     "make_learner",
+    "r_targets",
 ]
 
 LEARNERS: dict[str, type[UpliftLearner]] = {
@@ -40,12 +43,13 @@ LEARNERS: dict[str, type[UpliftLearner]] = {
     "s": SLearner,
     "x": XLearner,
     "dr": DRLearner,
+    "r": RLearner,
     "transformed": TransformedOutcomeLearner,
 }
 
 
 def make_learner(name: str, **params: Any) -> UpliftLearner:
-    """Build a learner by its short name (``t``, ``s``, ``x``, ``dr``, ``transformed``)."""
+    """Build a learner by its short name (``t``, ``s``, ``x``, ``dr``, ``r``, ``transformed``)."""
     try:
         cls = LEARNERS[name]
     except KeyError:

@@ -22,6 +22,7 @@ from service.uplift._checks import (
     warn_overlap,
 )
 from service.uplift._features import FeatureEncoder, as_frame
+from service.uplift._tuning import fit_tuned
 
 __all__ = ["UpliftLearner", "FitData"]
 
@@ -39,6 +40,8 @@ class FitData:
         binary: bool,
         categorical: np.ndarray,
         rng: np.random.RandomState,
+        tune: bool = False,
+        choices: dict[str, dict[str, Any]] | None = None,
     ) -> None:
         self.X, self.y, self.t = X, y, arms.index
         self.arms = arms
@@ -47,6 +50,9 @@ class FitData:
         self.binary = binary
         self.categorical = categorical
         self.rng = rng
+        self.tune = tune
+        # Settings chosen per nuisance role, shared with subsets (folds, replicates).
+        self.choices: dict[str, dict[str, Any]] = {} if choices is None else choices
 
     def subset(self, rows: np.ndarray, rng: np.random.RandomState) -> FitData:
         """The same data restricted to ``rows`` (repeats allowed), with its own RNG."""
@@ -60,6 +66,8 @@ class FitData:
             self.binary,
             self.categorical,
             rng,
+            self.tune,
+            self.choices,
         )
 
     @property
@@ -69,13 +77,42 @@ class FitData:
     def seed(self) -> int:
         return int(self.rng.randint(np.iinfo(np.int32).max))
 
-    def outcome_model(self, base: Any) -> Any:
-        return make_model(
-            base, classifier=self.binary, categorical=self.categorical, seed=self.seed()
-        )
+    def fit_role(
+        self,
+        role: str,
+        base: Any,
+        rows: np.ndarray,
+        target: np.ndarray | None = None,
+        *,
+        classifier: bool | None = None,
+        weight: np.ndarray | None = None,
+        X: np.ndarray | None = None,
+        categorical: np.ndarray | None = None,
+    ) -> Any:
+        """Fit the nuisance model of ``role`` on ``rows`` (the outcome unless ``target``
+        is given, which has one value per row of ``rows``), tuned on its first fit.
 
-    def effect_model(self, base: Any) -> Any:
-        return make_model(base, classifier=False, categorical=self.categorical, seed=self.seed())
+        ``classifier`` defaults to a classifier for a binary outcome without ``target``;
+        ``weight`` multiplies the sample weights; ``X`` and ``categorical`` replace the
+        encoded features (the S-learner appends the arm).
+        """
+        features = self.X if X is None else X
+        y = self.y[rows] if target is None else target
+        w = self.w[rows] if weight is None else self.w[rows] * weight
+        model, choice = fit_tuned(
+            base,
+            classifier=self.binary and target is None if classifier is None else classifier,
+            categorical=self.categorical if categorical is None else categorical,
+            seed=self.seed(),
+            X=features[rows],
+            y=y,
+            w=w,
+            choice=self.choices.get(role),
+            tune=self.tune,
+        )
+        if choice is not None:
+            self.choices[role] = choice
+        return model
 
     def folds(self, n_folds: int) -> list[tuple[np.ndarray, np.ndarray]]:
         """Folds stratified by arm (and outcome, when binary) for cross-fitting."""
@@ -106,6 +143,10 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
         assignment (cross-fitted) and warn when overlap is poor.
     min_arm_rows : int
         Refuse to fit when an arm has fewer rows.
+    tune : bool, default True
+        Choose each nuisance model's capacity (boosting: leaves, leaf size, number of
+        trees; linear: the penalty) by held-out loss on the rows given to ``fit``; see
+        ``service.uplift._tuning``. ``False`` keeps the fixed default settings.
     random_state : int, RandomState or None
     """
 
@@ -120,6 +161,7 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
         outcome: str = "auto",
         propensity: str = "auto",
         min_arm_rows: int = 20,
+        tune: bool = True,
         random_state: Any = None,
     ) -> None:
         self.base = base
@@ -128,6 +170,7 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
         self.outcome = outcome
         self.propensity = propensity
         self.min_arm_rows = min_arm_rows
+        self.tune = tune
         self.random_state = random_state
 
     # -- fitting -----------------------------------------------------------------------
@@ -190,7 +233,10 @@ class UpliftLearner(BaseEstimator):  # type: ignore[misc]
             kind == "binary",
             self.encoder_.categorical_mask,
             rng,
+            tune=bool(self.tune),
         )
+        # Filled in by ``_fit``: the settings chosen per nuisance role.
+        self.tuning_ = data.choices
         if self.propensity == "estimate" and not given:
             data.propensity = self._estimate_propensity(data)
         return data
@@ -251,12 +297,10 @@ def fit_outcome_models(
     """Outcome models for arms ``0 .. arms - 1`` (index 0 = control; default: every arm),
     each fitted on its own rows among ``rows`` (default: all rows)."""
     rows = np.arange(len(data.y)) if rows is None else rows
-    models = []
-    for k in range(data.n_arms + 1 if arms is None else arms):
-        mask = rows[data.t[rows] == k]
-        model = data.outcome_model(base)
-        models.append(fit_model(model, data.X[mask], data.y[mask], data.w[mask]))
-    return models
+    return [
+        data.fit_role(f"outcome:{k}", base, rows[data.t[rows] == k])
+        for k in range(data.n_arms + 1 if arms is None else arms)
+    ]
 
 
 def predict_outcomes(models: list[Any], X: np.ndarray) -> np.ndarray:

@@ -28,6 +28,7 @@ from service.uplift._kernels import score_rows
 from service.uplift._row_encoder import RowEncoder
 from service.uplift.bootstrap import BootstrapUplift
 from service.uplift.dr_learner import DRLearner
+from service.uplift.r_learner import RLearner
 from service.uplift.s_learner import SLearner
 from service.uplift.t_learner import TLearner
 from service.uplift.transformed import TransformedOutcomeLearner
@@ -272,7 +273,7 @@ def add_learner(builder: ProgramBuilder, replicate: int, learner: UpliftLearner)
             builder.add(replicate, a, from_treated, float(1 - share))
         if control:
             builder.add(replicate, n_arms, learner.outcome_models_[0], 1.0)
-    elif kind in (DRLearner, TransformedOutcomeLearner):
+    elif kind in (DRLearner, RLearner, TransformedOutcomeLearner):
         for a, effect in enumerate(learner.effect_models_):
             builder.add(replicate, a, effect, 1.0)
         if control:

@@ -5,7 +5,6 @@ from __future__ import annotations
 import numpy as np
 
 from service.uplift._base import FitData, UpliftLearner, fit_outcome_models, predict_outcomes
-from service.uplift._bases import fit_model
 
 __all__ = ["DRLearner", "dr_pseudo_outcomes"]
 
@@ -50,6 +49,7 @@ class DRLearner(UpliftLearner):
         outcome: str = "auto",
         propensity: str = "auto",
         min_arm_rows: int = 20,
+        tune: bool = True,
         n_folds: int = 5,
         random_state: object = None,
     ) -> None:
@@ -60,6 +60,7 @@ class DRLearner(UpliftLearner):
             outcome=outcome,
             propensity=propensity,
             min_arm_rows=min_arm_rows,
+            tune=tune,
             random_state=random_state,
         )
         self.n_folds = n_folds
@@ -69,8 +70,9 @@ class DRLearner(UpliftLearner):
         for train, test in data.folds(self.n_folds):
             mu[test] = predict_outcomes(fit_outcome_models(data, self.base, train), data.X[test])
         phi = dr_pseudo_outcomes(data.y, data.t, mu, data.propensity)
+        rows = np.arange(len(data.y))
         self.effect_models_ = [
-            fit_model(data.effect_model(self.base), data.X, phi[:, j], data.w)
+            data.fit_role(f"effect:{j + 1}", self.base, rows, phi[:, j], classifier=False)
             for j in range(data.n_arms)
         ]
         self.control_model_ = fit_outcome_models(data, self.base, arms=1)[0]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from service.uplift._base import FitData, UpliftLearner
-from service.uplift._bases import fit_model, make_model, predict_mean
+from service.uplift._bases import predict_mean
 
 __all__ = ["SLearner"]
 
@@ -24,11 +24,13 @@ class SLearner(UpliftLearner):
     """
 
     def _fit(self, data: FitData) -> None:
-        categorical = np.append(data.categorical, True)
-        self.model_ = make_model(
-            self.base, classifier=data.binary, categorical=categorical, seed=data.seed()
+        self.model_ = data.fit_role(
+            "outcome",
+            self.base,
+            np.arange(len(data.y)),
+            X=_with_arm(data.X, data.t.astype(float)),
+            categorical=np.append(data.categorical, True),
         )
-        fit_model(self.model_, _with_arm(data.X, data.t.astype(float)), data.y, data.w)
 
     def _predict(self, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         mu = np.column_stack(

@@ -5,7 +5,6 @@ from __future__ import annotations
 import numpy as np
 
 from service.uplift._base import FitData, UpliftLearner, fit_outcome_models, predict_outcomes
-from service.uplift._bases import fit_model
 
 __all__ = ["TransformedOutcomeLearner"]
 
@@ -31,8 +30,9 @@ class TransformedOutcomeLearner(UpliftLearner):
         arm = data.t[:, None] == np.arange(data.n_arms + 1)
         scaled = data.y[:, None] * arm / data.propensity
         z = scaled[:, 1:] - scaled[:, :1]
+        rows = np.arange(len(data.y))
         self.effect_models_ = [
-            fit_model(data.effect_model(self.base), data.X, z[:, j], data.w)
+            data.fit_role(f"effect:{j + 1}", self.base, rows, z[:, j], classifier=False)
             for j in range(data.n_arms)
         ]
         self.control_model_ = fit_outcome_models(data, self.base, arms=1)[0]

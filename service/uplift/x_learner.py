@@ -5,7 +5,6 @@ from __future__ import annotations
 import numpy as np
 
 from service.uplift._base import FitData, UpliftLearner, fit_outcome_models, predict_outcomes
-from service.uplift._bases import fit_model
 
 __all__ = ["XLearner"]
 
@@ -30,14 +29,14 @@ class XLearner(UpliftLearner):
         mu = predict_outcomes(self.outcome_models_, data.X)
         self.effect_models_ = []
         for a in range(1, data.n_arms + 1):
-            treated, control = data.t == a, data.t == 0
-            pair = []
-            for rows, imputed in (
-                (treated, data.y[treated] - mu[treated, 0]),
-                (control, mu[control, a] - data.y[control]),
-            ):
-                model = data.effect_model(self.base)
-                pair.append(fit_model(model, data.X[rows], imputed, data.w[rows]))
+            treated, control = np.flatnonzero(data.t == a), np.flatnonzero(data.t == 0)
+            pair = [
+                data.fit_role(f"{role}:{a}", self.base, rows, imputed, classifier=False)
+                for role, rows, imputed in (
+                    ("effect-treated", treated, data.y[treated] - mu[treated, 0]),
+                    ("effect-control", control, mu[control, a] - data.y[control]),
+                )
+            ]
             self.effect_models_.append(pair)
         p = data.propensity
         self.pair_share_ = (p[:, 1:] / (p[:, 1:] + p[:, :1])).mean(axis=0)

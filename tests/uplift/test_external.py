@@ -59,7 +59,7 @@ def test_mean_uplift_on_thornton_lies_in_the_difference_of_proportions_interval(
     assert low <= mean_uplift <= high, (name, mean_uplift, (low, high))
 
 
-@pytest.mark.parametrize("name", ["t", "s", "x", "dr"])
+@pytest.mark.parametrize("name", ["t", "s", "x", "dr", "r"])
 def test_continuous_learners_recover_the_nsw_experimental_estimate(
     nsw: pd.DataFrame, name: str
 ) -> None:
