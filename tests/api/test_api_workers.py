@@ -63,6 +63,9 @@ def test_two_workers_log_every_decision_once(trained_models: Path, tmp_path: Pat
         "--decision-log", str(log_path),
     ]  # fmt: skip
     env = {k: v for k, v in os.environ.items() if not k.startswith("UPSHOT_")}
+    # 202 requests at once: above the default shedding bound (32 per worker), which
+    # this test is not about.
+    env["UPSHOT_MAX_IN_FLIGHT"] = "512"
     with (tmp_path / "server.log").open("wb") as sink:
         server = subprocess.Popen(command, env=env, stdout=sink, stderr=sink)
     url = f"http://127.0.0.1:{port}"
