@@ -168,7 +168,7 @@ def test_auto_selects_the_best_cross_validated_qini(
     result = _train(campaign, tmp_path, learner="auto")
     selection = result.manifest["selection"]
     assert selection["mode"] == "auto"
-    assert set(selection["scores"]) == {"t", "s", "x", "dr", "transformed"}
+    assert set(selection["scores"]) == {"t", "s", "x", "dr", "r", "transformed"}
     best = max(selection["scores"], key=selection["scores"].get)
     assert result.manifest["learner"]["name"] == best
     mean_qini = np.mean(
