@@ -23,7 +23,7 @@ from psycopg_pool import ConnectionPool, PoolTimeout
 from service.decisions.location import redact
 from service.decisions.migrations import MIGRATIONS, SCHEMA_VERSION
 from service.decisions.record import COLUMNS, utc_now
-from service.decisions.store import DecisionLog, Tx
+from service.decisions.store import DecisionLog, Tx, window_clauses
 from service.decisions.writer import Rejected, Row
 from service.errors import ConfigError, DecisionLogError
 
@@ -173,11 +173,7 @@ class PostgresLog(DecisionLog):
     def _feature_types(
         self, campaign: str, since: str | None, until: str | None, with_outcome: bool
     ) -> Iterable[tuple[str, str]]:
-        clauses, params = ["d.campaign = ?"], [campaign]
-        for bound, op in ((since, ">="), (until, "<")):
-            if bound is not None:
-                clauses.append(f"d.created_at {op} ?")
-                params.append(bound)
+        clauses, params = window_clauses(campaign, since, until)
         if with_outcome:
             clauses.append("EXISTS (SELECT 1 FROM outcomes o WHERE o.decision_id = d.decision_id)")
         sql = (

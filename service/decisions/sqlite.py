@@ -11,7 +11,7 @@ from typing import Any
 
 from service.decisions.migrations import MIGRATIONS, SCHEMA_VERSION
 from service.decisions.record import COLUMNS
-from service.decisions.store import DecisionLog, Tx
+from service.decisions.store import DecisionLog, Tx, window_clauses
 from service.decisions.writer import Rejected, Row
 from service.errors import ConfigError, NotFoundError
 
@@ -153,11 +153,7 @@ class SqliteLog(DecisionLog):
     def _feature_types(
         self, campaign: str, since: str | None, until: str | None, with_outcome: bool
     ) -> Iterable[tuple[str, str]]:
-        clauses, params = ["d.campaign = ?"], [campaign]
-        for bound, op in ((since, ">="), (until, "<")):
-            if bound is not None:
-                clauses.append(f"d.created_at {op} ?")
-                params.append(bound)
+        clauses, params = window_clauses(campaign, since, until)
         if with_outcome:
             clauses.append("d.decision_id IN (SELECT decision_id FROM outcomes)")
         sql = (

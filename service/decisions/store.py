@@ -35,7 +35,7 @@ from service.decisions.record import COLUMNS, DecisionRecord, from_row, to_row, 
 from service.decisions.writer import GroupCommitWriter, Sink
 from service.errors import DataError, NotFoundError, UpshotError
 
-__all__ = ["JOINED", "DecisionLog", "OutcomeKinds", "StoreCounts"]
+__all__ = ["JOINED", "DecisionLog", "OutcomeKinds", "StoreCounts", "window_clauses"]
 
 OutcomeKinds = Callable[[str, str], str | None]
 """(model name, version) -> ``"binary"``, ``"continuous"`` or None when unknown."""
@@ -220,11 +220,7 @@ class DecisionLog(ABC):
         picked = ", ".join(
             f"o.{c}" if c in ("outcome", "observed_at") else f"d.{c}" for c in columns
         )
-        clauses, params = ["d.campaign = ?"], [campaign]
-        for bound, op in ((utc_text(since), ">="), (utc_text(until), "<")):
-            if bound is not None:
-                clauses.append(f"d.created_at {op} ?")
-                params.append(bound)
+        clauses, params = window_clauses(campaign, utc_text(since), utc_text(until))
         if with_outcome:
             clauses.append("o.decision_id IS NOT NULL")
         where = " AND ".join(clauses)
@@ -280,11 +276,7 @@ class DecisionLog(ABC):
         until: datetime | str | None = None,
     ) -> tuple[int, int]:
         """Decisions of a campaign in the window, and how many have an outcome."""
-        clauses, params = ["d.campaign = ?"], [campaign]
-        for bound, op in ((utc_text(since), ">="), (utc_text(until), "<")):
-            if bound is not None:
-                clauses.append(f"d.created_at {op} ?")
-                params.append(bound)
+        clauses, params = window_clauses(campaign, utc_text(since), utc_text(until))
         with self._read() as tx:
             total, done = tx.rows(
                 "SELECT COUNT(*), COUNT(o.decision_id) FROM decisions d "
@@ -553,3 +545,16 @@ def utc_text(moment: datetime | str | None) -> str | None:
     if moment.tzinfo is None:
         moment = moment.replace(tzinfo=UTC)
     return moment.astimezone(UTC).isoformat(timespec="microseconds")
+
+
+def window_clauses(
+    campaign: str, since: str | None, until: str | None
+) -> tuple[list[str], list[str]]:
+    """WHERE clauses (table alias ``d``) and parameters for a campaign's decisions with
+    ``since <= created_at < until`` (either bound optional, as stored UTC text)."""
+    clauses, params = ["d.campaign = ?"], [campaign]
+    for bound, op in ((since, ">="), (until, "<")):
+        if bound is not None:
+            clauses.append(f"d.created_at {op} ?")
+            params.append(bound)
+    return clauses, params
