@@ -306,3 +306,12 @@ def fit_outcome_models(
 def predict_outcomes(models: list[Any], X: np.ndarray) -> np.ndarray:
     """Expected outcome under each arm, shape (n, len(models))."""
     return np.column_stack([predict_mean(m, X) for m in models])
+
+
+def cross_fitted_outcomes(data: FitData, base: Any, n_folds: int) -> np.ndarray:
+    """Expected outcome under control and each arm, shape (n, 1 + n_arms), every row
+    predicted by outcome models fitted on the other folds (cross-fitting)."""
+    mu = np.empty((len(data.y), data.n_arms + 1))
+    for train, test in data.folds(n_folds):
+        mu[test] = predict_outcomes(fit_outcome_models(data, base, train), data.X[test])
+    return mu

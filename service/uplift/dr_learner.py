@@ -4,7 +4,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from service.uplift._base import FitData, UpliftLearner, fit_outcome_models, predict_outcomes
+from service.uplift._base import (
+    FitData,
+    UpliftLearner,
+    cross_fitted_outcomes,
+    fit_outcome_models,
+    predict_outcomes,
+)
 
 __all__ = ["DRLearner", "dr_pseudo_outcomes"]
 
@@ -66,9 +72,7 @@ class DRLearner(UpliftLearner):
         self.n_folds = n_folds
 
     def _fit(self, data: FitData) -> None:
-        mu = np.empty((len(data.y), data.n_arms + 1))
-        for train, test in data.folds(self.n_folds):
-            mu[test] = predict_outcomes(fit_outcome_models(data, self.base, train), data.X[test])
+        mu = cross_fitted_outcomes(data, self.base, self.n_folds)
         phi = dr_pseudo_outcomes(data.y, data.t, mu, data.propensity)
         rows = np.arange(len(data.y))
         self.effect_models_ = [

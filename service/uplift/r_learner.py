@@ -4,7 +4,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from service.uplift._base import FitData, UpliftLearner, fit_outcome_models, predict_outcomes
+from service.uplift._base import (
+    FitData,
+    UpliftLearner,
+    cross_fitted_outcomes,
+    fit_outcome_models,
+    predict_outcomes,
+)
 
 __all__ = ["RLearner", "r_targets"]
 
@@ -70,9 +76,7 @@ class RLearner(UpliftLearner):
         self.n_folds = n_folds
 
     def _fit(self, data: FitData) -> None:
-        mu = np.empty((len(data.y), data.n_arms + 1))
-        for train, test in data.folds(self.n_folds):
-            mu[test] = predict_outcomes(fit_outcome_models(data, self.base, train), data.X[test])
+        mu = cross_fitted_outcomes(data, self.base, self.n_folds)
         p = data.propensity
         self.effect_models_ = []
         for a in range(1, data.n_arms + 1):
