@@ -3,7 +3,12 @@
 1. ``GET /healthz`` (the HTTP stack's ceiling) and ``POST /v1/score`` (one customer per
    request, 20,000 distinct customers cycled) driven by ``wrk`` (Debian package ``wrk``;
    a Lua script supplies the bodies), with 1 and with 2 worker processes
-   (``upshot serve --workers N``): throughput, p50 and p99, ratios side by side.
+   (``upshot serve --workers N``) and 8 and 32 open connections: throughput, p50 and
+   p99, ratios side by side. Every score waits for its durable commit, so with few
+   connections the disk's commit latency bounds the rate: at most ``connections /
+   commit time`` per second even with free CPU. The run measures that latency first (a
+   SQLite commit in WAL mode with ``synchronous=FULL``, as the log does) and prints the
+   bound beside the rows; at 32 connections group commit lifts it and the CPU rules.
 2. ``POST /v1/score/batch`` and ``POST /v1/rank`` with 100,000 customers in column form
    (1 worker): time, customers/s, and the server's peak resident memory above idle
    during the request (``/proc/<pid>/clear_refs`` resets the peak, ``VmHWM`` reads it).
@@ -307,7 +312,7 @@ def main() -> None:
     parser.add_argument("--base", default="gbm", choices=["gbm", "linear"])
     parser.add_argument("--bootstrap", type=int, default=20)
     parser.add_argument("--seconds", type=float, default=10.0)
-    parser.add_argument("--connections", type=int, default=8)
+    parser.add_argument("--connections", default="8,32", help="comma-separated wrk -c values")
     parser.add_argument("--batch", type=int, default=100_000)
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--big", type=int, default=1_000_000, help="ranked list size; 0: skip")
@@ -326,30 +331,59 @@ def main() -> None:
             _train(models_dir, args.train_rows, args.learner, args.base, args.bootstrap)
         version = ModelRegistry(models_dir).champion(MODEL)
         script = _score_script(tmp / "score.lua", 20000)
-        loads: dict[int, tuple[Load, Load]] = {}
+        commit_ms = _commit_latency(tmp)
+        loads: dict[tuple[int, int], tuple[Load, Load]] = {}
         for workers in (1, 2):
             port = _free_port()
             server = _start_server(models_dir, tmp / f"decisions-{workers}.sqlite3", port,
                                    workers)  # fmt: skip
             try:
-                loads[workers] = _single(args, port, script, workers)
+                for connections in _connections(args):
+                    loads[workers, connections] = _single(args, port, script, workers,
+                                                          connections)  # fmt: skip
                 if workers == 1:
                     batch = _batches(args, port, server.pid)
             finally:
                 _stop(server)
         model_seconds = _in_process(models_dir, args)
         big = _big(args, models_dir, tmp) if args.big else None
-    _report(args, version, loads, batch, model_seconds, big)
+    _report(args, version, loads, batch, model_seconds, big, commit_ms)
 
 
-def _single(args: argparse.Namespace, port: int, script: Path, workers: int) -> tuple[Load, Load]:
+def _connections(args: argparse.Namespace) -> list[int]:
+    return [int(c) for c in str(args.connections).split(",")]
+
+
+def _single(
+    args: argparse.Namespace, port: int, script: Path, workers: int, connections: int
+) -> tuple[Load, Load]:
     url = f"http://127.0.0.1:{port}"
-    _progress(f"{workers} worker(s): GET /healthz and POST /v1/score, {args.seconds:g} s each")
-    _wrk(url + "/healthz", 2, args.connections, None, "warm-up")
-    health = _wrk(url + "/healthz", args.seconds, args.connections, None, "GET /healthz")
-    _wrk(url + "/v1/score", 2, args.connections, script, "warm-up")
-    score = _wrk(url + "/v1/score", args.seconds, args.connections, script, "POST /v1/score")
+    _progress(f"{workers} worker(s), {connections} connections: GET /healthz and "
+              f"POST /v1/score, {args.seconds:g} s each")  # fmt: skip
+    _wrk(url + "/healthz", 2, connections, None, "warm-up")
+    health = _wrk(url + "/healthz", args.seconds, connections, None, "GET /healthz")
+    _wrk(url + "/v1/score", 2, connections, script, "warm-up")
+    score = _wrk(url + "/v1/score", args.seconds, connections, script, "POST /v1/score")
     return health, score
+
+
+def _commit_latency(tmp: Path, commits: int = 200) -> float:
+    """Median milliseconds of a durable commit of 8 rows on this disk (WAL, FULL sync)."""
+    import sqlite3
+
+    conn = sqlite3.connect(tmp / "commit-probe.sqlite3", isolation_level=None)
+    conn.execute("PRAGMA journal_mode = WAL")
+    conn.execute("PRAGMA synchronous = FULL")
+    conn.execute("CREATE TABLE t (id INTEGER PRIMARY KEY, body TEXT)")
+    times = []
+    for _ in range(commits):
+        start = time.perf_counter()
+        conn.execute("BEGIN IMMEDIATE")
+        conn.executemany("INSERT INTO t (body) VALUES (?)", [("x" * 500,)] * 8)
+        conn.execute("COMMIT")
+        times.append(time.perf_counter() - start)
+    conn.close()
+    return 1e3 * statistics.median(times)
 
 
 def _batches(
@@ -397,10 +431,11 @@ def _progress(message: str) -> None:
 def _report(
     args: argparse.Namespace,
     version: str | None,
-    loads: dict[int, tuple[Load, Load]],
+    loads: dict[tuple[int, int], tuple[Load, Load]],
     batch: Timings,
     model_seconds: list[float],
     big: dict[str, float] | None,
+    commit_ms: float,
 ) -> None:
     n = args.batch
     print()
@@ -409,17 +444,22 @@ def _report(
         if args.models_dir is None
         else f"from {args.models_dir}"
     )
-    print(f"model {MODEL}:{version} ({trained}); wrk -t1 -c{args.connections}, "
-          f"{args.seconds:g} s per phase; {os.cpu_count()} cores, load average "
-          f"{os.getloadavg()[0]:.1f}")  # fmt: skip
-    print(f"{'workers':<8}{'phase':<18}{'req/s':>10}{'p50 ms':>9}{'p99 ms':>9}{'errors':>8}"
-          f"{'x healthz':>11}{'p99 x':>8}")  # fmt: skip
-    for workers, (health, score) in loads.items():
+    print(f"model {MODEL}:{version} ({trained}); wrk -t1, {args.seconds:g} s per phase; "
+          f"{os.cpu_count()} cores, load average {os.getloadavg()[0]:.1f}")  # fmt: skip
+    print(
+        f"a durable commit on this disk takes {commit_ms:.2f} ms (median; SQLite WAL, "
+        "synchronous=FULL), so c connections can get at most c / that many scores/s"
+    )
+    print(f"{'workers':<8}{'conns':<6}{'phase':<18}{'req/s':>10}{'p50 ms':>9}{'p99 ms':>9}"
+          f"{'errors':>8}{'x healthz':>11}{'p99 x':>8}{'commit bound':>14}")  # fmt: skip
+    for (workers, connections), (health, score) in loads.items():
         for load in (health, score):
             ratio = load.rate / health.rate
             p99 = load.p99 / health.p99
-            print(f"{workers:<8}{load.name:<18}{load.rate:>10,.0f}{load.p50:>9.2f}"
-                  f"{load.p99:>9.2f}{load.errors:>8}{ratio:>10.2f}x{p99:>7.2f}x")  # fmt: skip
+            bound = f"{connections / commit_ms * 1e3:>14,.0f}" if load is score else ""
+            print(f"{workers:<8}{connections:<6}{load.name:<18}{load.rate:>10,.0f}"
+                  f"{load.p50:>9.2f}{load.p99:>9.2f}{load.errors:>8}{ratio:>10.2f}x"
+                  f"{p99:>7.2f}x{bound}")  # fmt: skip
     print()
     model = statistics.median(model_seconds)
     print(f"{n:,} customers, column form, 1 worker; median of {args.repeats}; peak RSS is the "

@@ -7,6 +7,7 @@ The registry, the decision log and the campaign catalog are built once in the li
 from __future__ import annotations
 
 import asyncio
+import gc
 import logging
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
@@ -17,6 +18,7 @@ from service import __version__
 from service.api.auth import KeyRing
 from service.api.docs import install_docs
 from service.api.errors import install_error_handlers
+from service.api.hotpath import HotPath
 from service.api.limits import RequestLimits
 from service.api.metrics import Metrics, MetricsMiddleware
 from service.api.responses import OrjsonResponse
@@ -107,6 +109,11 @@ def create_app(
         await state.start()
         sync.adopt(state.catalog)
         poller = asyncio.create_task(sync.run()) if settings.sync_seconds > 0 else None
+        # Everything loaded so far (libraries, models) lives as long as the process: move
+        # it out of the cyclic collector's sight, or every full collection rescans ~300k
+        # objects (~60-150 ms measured), which was the single-score p99.
+        gc.collect()
+        gc.freeze()
         logger.info(
             "serving campaigns %s; not servable: %s",
             sorted(state.catalog.bound),
@@ -135,6 +142,9 @@ def create_app(
     app.state.service = state
     app.state.metrics = metrics_
     install_error_handlers(app)
+    # Innermost of ours: POST /v1/score skips the router (hotpath.py), after shedding,
+    # the body limit and the metrics have seen it.
+    app.add_middleware(HotPath, owner=app)
     app.add_middleware(MetricsMiddleware, metrics=metrics_)
     # Outermost: shedding and the body limit act before any other work is done.
     app.add_middleware(

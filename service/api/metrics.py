@@ -69,6 +69,7 @@ class Metrics:
         )  # fmt: skip
         self._counts: dict[str, tuple[int, int]] = {}
         self._decision_children: dict[tuple[str, str, str], Any] = {}
+        self._campaign_children: dict[str, tuple[Any, Any, Any]] = {}
 
     def record_decisions(
         self, campaign: str, mode: str, actions: Sequence[str], explored: int, held_out: int
@@ -83,14 +84,21 @@ class Metrics:
             if child is None:
                 child = self._decision_children[key] = self.decisions.labels(*key)
             child.inc(count)
+        children = self._campaign_children.get(campaign)
+        if children is None:
+            children = self._campaign_children[campaign] = (
+                self.explored.labels(campaign),
+                self.held_out.labels(campaign),
+                self.exploration_share.labels(campaign),
+            )
         if explored:
-            self.explored.labels(campaign).inc(explored)
+            children[0].inc(explored)
         if held_out:
-            self.held_out.labels(campaign).inc(held_out)
+            children[1].inc(held_out)
         seen, explored_so_far = self._counts.get(campaign, (0, 0))
         seen, explored_so_far = seen + len(actions), explored_so_far + explored
         self._counts[campaign] = (seen, explored_so_far)
-        self.exploration_share.labels(campaign).set(explored_so_far / seen if seen else 0.0)
+        children[2].set(explored_so_far / seen if seen else 0.0)
 
     def set_models(self, serving: dict[str, tuple[str, str]]) -> None:
         """Publish which model version serves each campaign."""

@@ -138,6 +138,13 @@ class DecisionLog(ABC):
         if future is not None:
             await asyncio.wrap_future(future)
 
+    async def append_rows(self, rows: Sequence[tuple[Any, ...]]) -> None:
+        """:meth:`append` for rows already checked by ``to_row`` or ``engine_row`` (the
+        one-customer path checks each request's row before the group is formed)."""
+        future = self._submit(list(rows))
+        if future is not None:
+            await asyncio.wrap_future(future)
+
     def append_sync(self, records: Sequence[DecisionRecord]) -> None:
         """:meth:`append` for synchronous code (CLI, tests); blocks until committed."""
         future = self._submit([to_row(record) for record in records])

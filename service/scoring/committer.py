@@ -16,6 +16,7 @@ from collections.abc import Awaitable, Callable, Sequence
 from typing import Generic, TypeVar
 
 from service.decisions import DecisionColumns, DecisionLog, DecisionRecord
+from service.decisions.record import engine_row
 from service.errors import DataError, DecisionLogError, UpshotError
 from service.scoring.collector import paused
 
@@ -76,7 +77,7 @@ class Committer:
 
     def __init__(self, log: DecisionLog) -> None:
         self.log = log
-        self._records: _Group[DecisionRecord] = _Group(log.append)
+        self._records: _Group[tuple[object, ...]] = _Group(log.append_rows)
         self._columns: _Group[DecisionColumns] = _Group(log.append_columns)
 
     async def commit(self, records: list[DecisionRecord]) -> None:
@@ -94,7 +95,8 @@ class Committer:
         if len(records) > _THREAD_RECORDS:
             await _guard(asyncio.to_thread(paused, lambda: self.log.append_sync(records)))
             return
-        await self._records.add(records)
+        # Checked here, so an invalid record fails its own request before any grouping.
+        await self._records.add([engine_row(record) for record in records])
 
     async def commit_columns(self, columns: DecisionColumns) -> None:
         """Return once the decisions of ``columns`` are committed (all or nothing).

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from service.decisions import DecisionRecord, decision_id, utc_now
-from service.decisions.record import from_row, to_row
+from service.decisions.record import engine_row, from_row, to_row
 from service.errors import DataError
 
 RecordFactory = Callable[..., DecisionRecord]
@@ -98,6 +98,28 @@ def test_invalid_records_name_the_field(
     record: DecisionRecord = make_record(1, **changes)
     with pytest.raises(DataError, match=match):
         to_row(record)
+    # The one-customer path's quick check hands every such record to to_row's checks.
+    with pytest.raises(DataError, match=match):
+        engine_row(record)
+
+
+@pytest.mark.parametrize(
+    "changes",
+    [
+        {},
+        {"action": "none", "expected_value": 0.0, "propensity": 0.15},
+        {"explored": True, "holdout": True, "do_not_contact": True},
+        {"tau": np.array([0.05, 0.12], dtype=np.float32)},  # not Python floats: to_row's way
+        {"created_at": "2026-03-01T10:00:00+01:00"},  # not UTC: to_row converts it
+        {"value": 40},  # an integer value is stored as its float
+    ],
+)
+def test_the_quick_row_equals_the_checked_row(
+    make_record: RecordFactory, changes: dict[str, object]
+) -> None:
+    for i in range(3):
+        record = make_record(i, **changes)
+        assert engine_row(record) == to_row(record)
 
 
 def test_utc_now_is_iso_with_offset() -> None:
