@@ -19,6 +19,8 @@ __all__ = ["SqliteLog", "connect", "migrate_sqlite"]
 
 # Replicas sharing one file wait this long for another writer's lock before failing.
 _BUSY_TIMEOUT_MS = 10_000
+_WRITER_CACHE_KIB = -32_768  # negative: KiB, so 32 MiB
+_CHECKPOINT_PAGES = 4096
 
 # Idempotent on the id only: unlike INSERT OR IGNORE, which would also silently skip a
 # row that breaks a CHECK or NOT NULL constraint, this still fails such a row.
@@ -40,6 +42,13 @@ def connect(path: Path, *, readonly: bool = False) -> sqlite3.Connection:
     conn.execute("PRAGMA synchronous = FULL")
     if readonly:
         conn.execute("PRAGMA query_only = 1")
+    else:
+        # Writers: a page cache that holds the hot index pages of a big batch, and fewer,
+        # larger checkpoints (every ~16 MB of log instead of ~4 MB). Inserting 100,000
+        # decision rows in 10,000-row commits measured 43-51k rows/s against 20-44k with
+        # SQLite's defaults (three rounds each, machine shared, so a noisy figure).
+        conn.execute(f"PRAGMA cache_size = {_WRITER_CACHE_KIB}")
+        conn.execute(f"PRAGMA wal_autocheckpoint = {_CHECKPOINT_PAGES}")
     return conn
 
 
