@@ -13,7 +13,8 @@
    (1 worker): time, customers/s, and the server's peak resident memory above idle
    during the request (``/proc/<pid>/clear_refs`` resets the peak, ``VmHWM`` reads it).
    The model's share is timed in-process on the same 100,000 customers
-   (``predict_interval`` of the compiled model), so the rest is the service's.
+   (``predict_interval`` of the form the service serves, compact by default), so the
+   rest is the service's.
 3. A ranked list of 1,000,000 candidates through the engine's chunk API
    (``decide_chunk`` -> ``rank_chunks`` -> ``emit_columns`` -> the SQLite log, 100,000
    per chunk), in a separate process: time, model share, peak memory. One request of a
@@ -402,11 +403,13 @@ def _batches(
 
 
 def _in_process(models_dir: Path, args: argparse.Namespace) -> list[float]:
-    from service.uplift.compiled import compile_model
+    from service.scoring.estimates import load_servable
 
-    _progress("in-process predictions of the same model ...")
+    _progress("in-process predictions of the same model, in the form the service serves ...")
     _, frame = _customers(args.batch, seed=23)
-    model = compile_model(ModelRegistry(models_dir).load(MODEL).model)
+    registry = ModelRegistry(models_dir)
+    _, served = load_servable(registry, MODEL, str(registry.champion(MODEL)))
+    model = getattr(served, "compiled", None) or getattr(served, "model")  # noqa: B009
     times = []
     for _ in range(args.repeats):
         start = time.perf_counter()
@@ -465,7 +468,7 @@ def _report(
     print(f"{n:,} customers, column form, 1 worker; median of {args.repeats}; peak RSS is the "
           "server's, above idle, worst of the runs")  # fmt: skip
     print(f"{'path':<40}{'seconds':>9}{'customers/s':>13}{'peak MB':>9}{'w/o model /s':>14}")
-    print(f"{'in-process predict_interval (model)':<40}{model:>9.2f}{n / model:>13,.0f}")
+    print(f"{'in-process predict_interval (served form)':<40}{model:>9.2f}{n / model:>13,.0f}")
     for key, name in (
         ("batch", "POST /v1/score/batch"),
         ("rank", "POST /v1/rank (capacity 5000)"),

@@ -138,12 +138,19 @@ class DecisionLog(ABC):
         if future is not None:
             await asyncio.wrap_future(future)
 
-    async def append_rows(self, rows: Sequence[tuple[Any, ...]]) -> None:
-        """:meth:`append` for rows already checked by ``to_row`` or ``engine_row`` (the
-        one-customer path checks each request's row before the group is formed)."""
-        future = self._submit(list(rows))
-        if future is not None:
-            await asyncio.wrap_future(future)
+    def submit_rows(
+        self, rows: Sequence[tuple[Any, ...]]
+    ) -> concurrent.futures.Future[int] | None:
+        """Queue rows already checked by ``to_row`` or ``engine_row`` for the next group
+        commit; the future resolves once they are committed (None: nothing to log)."""
+        return self._submit(list(rows))
+
+    def submit_columns(
+        self, batches: Sequence[DecisionColumns]
+    ) -> concurrent.futures.Future[int] | None:
+        """:meth:`submit_rows` for decisions in column form; raise :class:`DataError`
+        (nothing queued) when a batch is invalid."""
+        return self._submit(_column_rows(batches))
 
     def append_sync(self, records: Sequence[DecisionRecord]) -> None:
         """:meth:`append` for synchronous code (CLI, tests); blocks until committed."""

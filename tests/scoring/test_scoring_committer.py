@@ -36,10 +36,10 @@ def _record(i: int, *, propensity: float = 0.9) -> DecisionRecord:
 async def test_requests_of_one_loop_turn_share_one_commit(tmp_path: Path) -> None:
     with DecisionLog.open(tmp_path / "log.sqlite3") as log:
         committer = Committer(log)
-        await asyncio.gather(*(committer.commit([_record(i)]) for i in range(8)))
-        assert log.records_written == 8
+        await asyncio.gather(*(committer.commit([_record(i)]) for i in range(12)))
+        assert log.records_written == 12
         assert log.commits == 1
-        for i in range(8):
+        for i in range(12):
             assert log.get(f"{i:032x}") is not None
 
 
