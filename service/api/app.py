@@ -133,6 +133,7 @@ def create_app(
                 poller.cancel()
                 await asyncio.gather(poller, return_exceptions=True)
             state.close()
+            gc.unfreeze()  # what this app held may be collected again (tests start many)
 
     app = FastAPI(
         title="upshot scoring service",
