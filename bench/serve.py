@@ -84,7 +84,10 @@ class Load:
 def _wrk(url: str, seconds: float, connections: int, script: Path | None, name: str) -> Load:
     command = ["wrk", "-t1", f"-c{connections}", f"-d{seconds:g}s", "--latency", url]
     if script is not None:
+        # A fresh tag makes every request's customer id one the log has not seen (a
+        # repeated id would be an idempotent retry, which inserts nothing).
         command[1:1] = ["-s", str(script)]
+        command += ["--", f"{name.replace(' ', '')}-{time.time_ns()}"]
     out = subprocess.run(command, check=True, capture_output=True, text=True).stdout
     rate = float(re.search(r"Requests/sec:\s+([\d.]+)", out).group(1))  # type: ignore[union-attr]
     quantiles = {
@@ -97,20 +100,26 @@ def _wrk(url: str, seconds: float, connections: int, script: Path | None, name: 
 
 
 def _score_script(path: Path, n: int) -> Path:
-    """A wrk Lua script cycling through ``n`` single-customer request bodies."""
-    ids, frame = _customers(n, seed=11)
+    """A wrk Lua script cycling through the features of ``n`` customers, each request
+    with a new customer id (the tag given after ``--`` and a counter)."""
+    _, frame = _customers(n, seed=11)
     records = frame.astype(object).where(frame.notna(), None).to_dict("records")
-    lines = ["local bodies = {"]
-    for cid, features in zip(ids, records, strict=True):
-        body = orjson.dumps({"campaign": CAMPAIGN, "customer": {"id": cid, "features": features}})
-        lines.append(f"[==[{body.decode()}]==],")
+    lines = ["local heads, tails = {}, {}"]
+    for features in records:
+        body = orjson.dumps(
+            {"campaign": CAMPAIGN, "customer": {"id": "@ID@", "features": features}}
+        )
+        head, tail = body.decode().split("@ID@")
+        lines.append(f"heads[#heads + 1] = [==[{head}]==]; tails[#tails + 1] = [==[{tail}]==]")
     lines += [
-        "}",
-        "local i = 0",
+        "local i, n, tag = 0, 0, 'wrk'",
+        "function init(args) if #args > 0 then tag = args[1] end end",
         'local headers = {["Content-Type"] = "application/json"}',
         "request = function()",
-        "  i = i % #bodies + 1",
-        '  return wrk.format("POST", "/v1/score", headers, bodies[i])',
+        "  i = i % #heads + 1",
+        "  n = n + 1",
+        '  local body = heads[i] .. tag .. "-" .. n .. tails[i]',
+        '  return wrk.format("POST", "/v1/score", headers, body)',
         "end",
     ]
     path.write_text("\n".join(lines), encoding="utf-8")
@@ -390,14 +399,19 @@ def _commit_latency(tmp: Path, commits: int = 200) -> float:
 def _batches(
     args: argparse.Namespace, port: int, pid: int
 ) -> dict[str, list[tuple[float, float]]]:
-    ids, frame = _customers(args.batch, seed=23)
-    body = {"campaign": CAMPAIGN, "columns": _columns(ids, frame)}
-    batch = _request("POST", "/v1/score/batch", orjson.dumps(body), port)
-    ranked = _request("POST", "/v1/rank", orjson.dumps({**body, "capacity": 5000}), port)
+    """Each repeat sends customers the log has not seen: a repeated request would be an
+    idempotent retry (same decision ids, nothing new to insert) and time far less."""
     _progress(f"POST /v1/score/batch and /v1/rank with {args.batch:,} customers ...")
     out: Timings = {"batch": [], "rank": []}
-    for _ in range(args.repeats):
+    for r in range(args.repeats):
+        ids, frame = _customers(args.batch, seed=23 + r)
+        body = {"campaign": CAMPAIGN, "columns": _columns(ids, frame)}
+        batch = _request("POST", "/v1/score/batch", orjson.dumps(body), port)
         out["batch"].append(_timed(port, batch, pid)[:2])
+        del batch
+        ids = [f"R{i}" for i in ids]  # new candidates for the ranked list too
+        body = {"campaign": CAMPAIGN, "columns": {**body["columns"], "id": ids}, "capacity": 5000}
+        ranked = _request("POST", "/v1/rank", orjson.dumps(body), port)
         out["rank"].append(_timed(port, ranked, pid)[:2])
     return out
 
