@@ -218,6 +218,32 @@ def test_sqlite_uses_wal_and_holds_the_outcomes_table(
         conn.close()
 
 
+def test_sqlite_writer_waits_for_another_process_lock_then_commits(
+    tmp_path: Path, make_record: RecordFactory, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Another connection (as another worker would) holds the write lock: the writer
+    polls, commits once it is released, and gives up with a clear error at the timeout."""
+    import service.decisions.sqlite as engine
+
+    path = tmp_path / "log.db"
+    with DecisionLog.open(path) as opened:
+        opened.append_sync([make_record(1)])
+        other = sqlite3.connect(path, isolation_level=None, check_same_thread=False)
+        other.execute("BEGIN IMMEDIATE")
+        threading.Timer(0.2, lambda: other.execute("COMMIT")).start()
+        opened.append_sync([make_record(2)])  # waited for the lock, then committed
+        assert opened.get(make_record(2).decision_id) is not None
+        monkeypatch.setattr(engine, "_BUSY_TIMEOUT_MS", 300)
+        other.execute("BEGIN IMMEDIATE")
+        try:
+            with pytest.raises(UpshotError, match="could not commit"):
+                opened.append_sync([make_record(3)])
+        finally:
+            other.execute("COMMIT")
+            other.close()
+        assert opened.get(make_record(3).decision_id) is None
+
+
 def test_writable_until_closed(location: str, make_record: RecordFactory) -> None:
     opened = DecisionLog.open(location)
     assert opened.writable()
