@@ -9,7 +9,7 @@ from sklearn.base import clone
 
 from service.simulation import simulate
 from service.uplift import BootstrapUplift, RLearner, TLearner, make_learner, r_targets
-from service.uplift._tuning import GBM_GRID, LINEAR_GRID, _one_se
+from service.uplift._tuning import GBM_GRID, LINEAR_GRID, _smallest
 
 
 def test_each_role_records_a_choice_from_the_grid() -> None:
@@ -21,9 +21,9 @@ def test_each_role_records_a_choice_from_the_grid() -> None:
         params = choice["params"]
         assert {k: params[k] for k in ("max_leaf_nodes", "min_samples_leaf")} in shapes
         assert len(choice["losses"]) == len(GBM_GRID)
-        # The kept setting is the best or a simpler one (the one-standard-error rule).
+        # The kept setting is the one with the smallest held-out loss.
         kept = [g["max_leaf_nodes"] for g in GBM_GRID].index(params["max_leaf_nodes"])
-        assert kept <= int(np.argmin(choice["losses"]))
+        assert kept == int(np.argmin(choice["losses"]))
         assert params["max_iter"] >= 1 and params["early_stopping"] is False
 
 
@@ -32,20 +32,25 @@ def test_linear_penalty_is_chosen_by_held_out_loss() -> None:
     learner = TLearner(base="linear", random_state=0).fit(sim.X, sim.y, sim.treatment)
     for choice in learner.tuning_.values():
         kept = LINEAR_GRID[True].index(choice["params"])
-        assert kept <= int(np.argmin(choice["losses"]))
+        assert kept == int(np.argmin(choice["losses"]))
 
 
-def test_one_standard_error_rule_prefers_the_simpler_setting_within_noise() -> None:
-    # Hastie, Tibshirani & Friedman (2009), sec. 7.10: the simplest model whose error is
-    # within one standard error of the best.
+def test_the_smallest_weighted_held_out_loss_wins_and_ties_go_to_the_simpler() -> None:
+    # Hastie, Tibshirani & Friedman (2009), sec. 7.10: keep the setting with the smallest
+    # estimated prediction error; weights count as repeated rows (numpy.average).
     rng = np.random.default_rng(0)
     best = rng.exponential(1.0, 2000)
     w = np.ones(2000)
-    within = best + rng.normal(0.0, 0.5, 2000) + 0.001  # worse by much less than its SE
-    beyond = best + 0.2  # worse by far more than its SE
-    assert _one_se([within, best], w) == 0
-    assert _one_se([beyond, best], w) == 1
-    assert _one_se([best, beyond], w) == 0
+    slightly_worse = best + 0.001
+    assert _smallest([slightly_worse, best], w)[0] == 1
+    assert _smallest([best, best.copy()], w)[0] == 0
+    # Weight only the first half of the rows: the candidate better there wins.
+    first_half = np.r_[np.ones(1000), np.zeros(1000)]
+    better_first = np.r_[best[:1000] - 0.1, best[1000:] + 1.0]
+    assert _smallest([best, better_first], w)[0] == 0
+    index, means = _smallest([best, better_first], first_half)
+    assert index == 1
+    assert means[1] == pytest.approx(best[:1000].mean() - 0.1)
 
 
 def test_tuning_sees_only_the_rows_given_to_fit() -> None:
