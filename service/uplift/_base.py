@@ -92,7 +92,8 @@ class FitData:
         """Fit the nuisance model of ``role`` on ``rows`` (the outcome unless ``target``
         is given, which has one value per row of ``rows``), tuned on its first fit.
 
-        ``classifier`` defaults to a classifier for a binary outcome without ``target``;
+        ``classifier`` defaults to a classifier for a binary outcome without ``target``
+        (a ``target`` is tuned with the one-standard-error rule, see ``fit_tuned``);
         ``weight`` multiplies the sample weights; ``X`` and ``categorical`` replace the
         encoded features (the S-learner appends the arm).
         """
@@ -109,6 +110,7 @@ class FitData:
             w=w,
             choice=self.choices.get(role),
             tune=self.tune,
+            observed=target is None,
         )
         if choice is not None:
             self.choices[role] = choice

@@ -91,7 +91,7 @@ def test_linear_t_learner_matches_ols_with_treatment_interactions() -> None:
     frame = X.assign(y=y, t=t)
     ols = smf.ols("y ~ (x1 + x2) * t", data=frame).fit()
     expected = ols.params["t"] + ols.params["x1:t"] * X.x1 + ols.params["x2:t"] * X.x2
-    # Untuned: the tuned ridge may pick a heavier penalty (one-standard-error rule).
+    # Untuned: the tuned ridge may pick a heavier penalty.
     learner = TLearner(base="linear", tune=False).fit(X, y, t)
     np.testing.assert_allclose(learner.predict(X)[:, 0], expected, atol=0.01)
     # and both recover the simulated coefficients

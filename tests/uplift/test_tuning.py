@@ -9,7 +9,7 @@ from sklearn.base import clone
 
 from service.simulation import simulate
 from service.uplift import BootstrapUplift, RLearner, TLearner, make_learner, r_targets
-from service.uplift._tuning import GBM_GRID, LINEAR_GRID, _one_se
+from service.uplift._tuning import GBM_GRID, LINEAR_GRID, _choose
 
 
 def test_each_role_records_a_choice_from_the_grid() -> None:
@@ -17,13 +17,15 @@ def test_each_role_records_a_choice_from_the_grid() -> None:
     learner = RLearner(random_state=0).fit(sim.X, sim.y, sim.treatment)
     assert set(learner.tuning_) == {"outcome:0", "outcome:1", "outcome:2", "effect:1", "effect:2"}
     shapes = [{k: g[k] for k in ("max_leaf_nodes", "min_samples_leaf")} for g in GBM_GRID]
-    for choice in learner.tuning_.values():
+    for role, choice in learner.tuning_.items():
         params = choice["params"]
         assert {k: params[k] for k in ("max_leaf_nodes", "min_samples_leaf")} in shapes
         assert len(choice["losses"]) == len(GBM_GRID)
-        # The kept setting is the best or a simpler one (the one-standard-error rule).
         kept = [g["max_leaf_nodes"] for g in GBM_GRID].index(params["max_leaf_nodes"])
-        assert kept <= int(np.argmin(choice["losses"]))
+        if role.startswith("outcome"):  # the observed outcome: the smallest held-out loss
+            assert kept == int(np.argmin(choice["losses"]))
+        else:  # a constructed target: the best or a simpler setting (one-SE rule)
+            assert kept <= int(np.argmin(choice["losses"]))
         assert params["max_iter"] >= 1 and params["early_stopping"] is False
 
 
@@ -32,20 +34,29 @@ def test_linear_penalty_is_chosen_by_held_out_loss() -> None:
     learner = TLearner(base="linear", random_state=0).fit(sim.X, sim.y, sim.treatment)
     for choice in learner.tuning_.values():
         kept = LINEAR_GRID[True].index(choice["params"])
-        assert kept <= int(np.argmin(choice["losses"]))
+        assert kept == int(np.argmin(choice["losses"]))
 
 
-def test_one_standard_error_rule_prefers_the_simpler_setting_within_noise() -> None:
-    # Hastie, Tibshirani & Friedman (2009), sec. 7.10: the simplest model whose error is
-    # within one standard error of the best.
+def test_the_smallest_loss_wins_unless_a_simpler_one_is_within_one_standard_error() -> None:
+    # Hastie, Tibshirani & Friedman (2009), sec. 7.10: the smallest estimated prediction
+    # error, or the simplest model whose error is within one standard error of the best.
     rng = np.random.default_rng(0)
     best = rng.exponential(1.0, 2000)
     w = np.ones(2000)
     within = best + rng.normal(0.0, 0.5, 2000) + 0.001  # worse by much less than its SE
     beyond = best + 0.2  # worse by far more than its SE
-    assert _one_se([within, best], w) == 0
-    assert _one_se([beyond, best], w) == 1
-    assert _one_se([best, beyond], w) == 0
+    assert _choose([within, best], w, one_se=False)[0] == 1
+    assert _choose([within, best], w, one_se=True)[0] == 0
+    assert _choose([beyond, best], w, one_se=True)[0] == 1
+    assert _choose([best, beyond], w, one_se=True)[0] == 0
+    assert _choose([best, best.copy()], w, one_se=False)[0] == 0  # ties: the simpler
+    # Weights count as repeated rows (numpy.average): weight only the first half.
+    first_half = np.r_[np.ones(1000), np.zeros(1000)]
+    better_first = np.r_[best[:1000] - 0.1, best[1000:] + 1.0]
+    assert _choose([best, better_first], w, one_se=False)[0] == 0
+    index, means = _choose([best, better_first], first_half, one_se=False)
+    assert index == 1
+    assert means[1] == pytest.approx(best[:1000].mean() - 0.1)
 
 
 def test_tuning_sees_only_the_rows_given_to_fit() -> None:
