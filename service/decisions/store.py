@@ -160,13 +160,13 @@ class DecisionLog(ABC):
 
     async def append_columns(self, batches: Sequence[DecisionColumns]) -> None:
         """:meth:`append` for decisions in column form (the batch path); all or nothing."""
-        future = self._submit(_column_rows(batches))
+        future = self.submit_columns(batches)
         if future is not None:
             await asyncio.wrap_future(future)
 
     def append_columns_sync(self, batches: Sequence[DecisionColumns]) -> None:
         """:meth:`append_columns` for synchronous code; blocks until committed."""
-        future = self._submit(_column_rows(batches))
+        future = self.submit_columns(batches)
         if future is not None:
             future.result()
 

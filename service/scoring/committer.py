@@ -49,8 +49,10 @@ class _Group(Generic[T]):
 
     def _flush(self) -> None:
         group, self._pending = self._pending, []
-        if not group:
-            return
+        if group:
+            self._hand_in(group)
+
+    def _hand_in(self, group: list[tuple[list[T], asyncio.Future[None]]]) -> None:
         try:
             future = self._submit([item for items, _ in group for item in items])
         except DataError as err:
@@ -60,8 +62,7 @@ class _Group(Generic[T]):
             # Some request's decisions are invalid: hand in each request on its own, so
             # only that request fails.
             for one in group:
-                self._pending = [one]
-                self._flush()
+                self._hand_in([one])
             return
         except UpshotError as err:
             for _, waiter in group:
