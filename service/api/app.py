@@ -15,7 +15,7 @@ from contextlib import asynccontextmanager
 
 from fastapi import FastAPI
 
-from service import __version__
+from service import __version__, hashing
 from service.api.auth import KeyRing
 from service.api.docs import install_docs
 from service.api.errors import install_error_handlers
@@ -111,6 +111,7 @@ def create_app(
         await sync.prime()
         await state.start()
         sync.adopt(state.catalog)
+        hashing.warm_up()  # the batch path's hash kernel, compiled before the first batch
         poller = asyncio.create_task(sync.run()) if settings.sync_seconds > 0 else None
         # Everything loaded so far (libraries, models) lives as long as the process: move
         # it out of the cyclic collector's sight, or every full collection rescans ~300k

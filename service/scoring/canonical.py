@@ -19,6 +19,8 @@ import numpy as np
 import numpy.typing as npt
 import orjson
 
+from service.hashing import COMPILED_ROWS, blake2b_texts
+
 __all__ = ["decision_ids", "feature_json"]
 
 
@@ -52,11 +54,12 @@ def decision_ids(
     tail = "" if context == "score" else "," + orjson.dumps(context).decode().replace("%", "%%")
     template = head + middle + ",%s,%s" + tail + "]"
     ids = [orjson.dumps(str(i)).decode() for i in customer_ids]
-    blake2b = hashlib.blake2b
-    return [
-        blake2b((template % row).encode(), digest_size=16).hexdigest()
-        for row in zip(ids, features, _number_fragments(values), strict=True)
-    ]
+    rows = zip(ids, features, _number_fragments(values), strict=True)
+    if len(ids) < COMPILED_ROWS:
+        blake2b = hashlib.blake2b
+        return [blake2b((template % row).encode(), digest_size=16).hexdigest() for row in rows]
+    text = blake2b_texts([template % row for row in rows], 16).tobytes().hex()
+    return [text[k : k + 32] for k in range(0, len(text), 32)]
 
 
 def _fragments(column: npt.NDArray[Any]) -> list[str]:

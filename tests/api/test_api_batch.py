@@ -80,6 +80,14 @@ async def test_one_bad_row_rejects_the_whole_batch(
         (lambda c: c.update(colour=["x"] * 5), "'colour'"),
         (lambda c: c.update(value=[1.0, 2.0]), "'value'"),
         (lambda c: c["id"].__setitem__(2, 17), "'id'"),
+        # Entries are checked by the feature schema (not by the body model): any JSON
+        # value in any column is refused with its row and feature.
+        (lambda c: c.update(plan="family"), "column 'plan' must be a list"),
+        (lambda c: c.update(id={"a": 1}), "column 'id' must be a list"),
+        (lambda c: c["tenure_months"].__setitem__(1, [3]), "'tenure_months'"),
+        (lambda c: c["plan"].__setitem__(0, {"x": 1}), "'plan'"),
+        (lambda c: c["id"].__setitem__(0, ["a"]), "'id'"),
+        (lambda c: c.update(value=[None, [1], 2.0, 3.0, 4.0]), "'value'"),
     ],
 )
 async def test_malformed_columns_are_refused(

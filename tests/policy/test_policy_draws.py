@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import time
-
 import numpy as np
 from scipy import stats
 
@@ -39,10 +37,3 @@ def test_draws_are_uniform_and_independent_over_100k_ids() -> None:
     # Purposes are independent: correlations within 4 standard errors (1/sqrt(n)) of 0.
     corr = np.corrcoef(np.vstack(draws))
     assert np.abs(corr[np.triu_indices(3, 1)]).max() < 4 / np.sqrt(len(IDS))
-
-
-def test_100k_draws_take_well_under_a_second() -> None:
-    start = time.perf_counter()
-    uniform_draws("salt", "winter", IDS)
-    # Measured about 0.2 s on the 2-core build machine; the bound leaves room for load.
-    assert time.perf_counter() - start < 1.0

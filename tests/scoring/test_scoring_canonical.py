@@ -6,6 +6,7 @@ import numpy as np
 import orjson
 
 from service.decisions import decision_id
+from service.hashing import COMPILED_ROWS
 from service.scoring.canonical import decision_ids, feature_json
 
 _SORTED = orjson.OPT_SORT_KEYS
@@ -54,6 +55,22 @@ def test_decision_ids_equal_the_scalar_function() -> None:
             for i, r, v in zip(ids, rows, values.tolist(), strict=True)
         ]
         assert fast == slow
+        # The same rows tiled past COMPILED_ROWS go through the compiled hash.
+        reps = COMPILED_ROWS // 8 + 1
+        tiled = {name: np.tile(column, reps) for name, column in columns.items()}
+        many = decision_ids(
+            "camp%s", ids * reps, "hash,1", model, feature_json(tiled, 8 * reps),
+            np.tile(values, reps), context,
+        )  # fmt: skip
+        assert many == slow * reps
+        ascii_ids = [f"C{i}" for i in range(8 * reps)]
+        plain = {"n": np.arange(8.0 * reps)}
+        many = decision_ids("c", ascii_ids, "h", model, feature_json(plain, 8 * reps),
+                            np.ones(8 * reps), context)  # fmt: skip
+        assert many == [
+            decision_id("c", i, "h", model, {"n": float(k)}, 1.0, context=context)
+            for k, i in enumerate(ascii_ids)
+        ]
 
 
 def test_no_features_and_no_rows() -> None:
