@@ -236,11 +236,13 @@ def decide_chunk(
     values: Sequence[Any] | FloatArray | None,
     *,
     first_row: int = 0,
+    threads: int | None = None,
 ) -> Decided:
     """Estimate and decide one chunk of validated customers (vectorised).
 
     ``values`` may be raw per-customer values (checked; problems name the row counted
-    from ``first_row``) or an array from :func:`resolve_values`.
+    from ``first_row``) or an array from :func:`resolve_values`. ``threads`` caps the
+    model's scoring threads (default: as many as pay off).
     """
     n = len(ids)
     if n != len(table):
@@ -252,7 +254,7 @@ def decide_chunk(
     campaign = bound.campaign
     if n:
         level = two_sided_level(campaign.confidence)
-        est = bound.model.estimate(table, level).take(bound.arm_columns)
+        est = bound.model.estimate(table, level, threads=threads).take(bound.arm_columns)
     else:
         empty = np.empty((0, len(bound.arm_columns)))
         est = Estimates(empty, np.empty(0), empty, empty)

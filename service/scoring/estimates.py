@@ -52,8 +52,11 @@ class ServableModel(Protocol):
     kind: str
     form: str  # "full" or "compact": which of the bundle's forms produces the numbers
 
-    def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
-        """Estimates for every row of a validated table (two-sided ``confidence``)."""
+    def estimate(
+        self, table: FeatureTable, confidence: float, *, threads: int | None = None
+    ) -> Estimates:
+        """Estimates for every row of a validated table (two-sided ``confidence``), on at
+        most ``threads`` threads (default: as many as pay off)."""
         ...
 
     def estimate_row(self, row: dict[str, Any], confidence: float) -> Estimates:
@@ -70,7 +73,9 @@ class _Bootstrap:
     def __init__(self, model: Any) -> None:
         self.model = model
 
-    def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
+    def estimate(
+        self, table: FeatureTable, confidence: float, *, threads: int | None = None
+    ) -> Estimates:
         tau, mu0, low, high = self.model.predict_interval(table.frame(), confidence=confidence)
         return Estimates(_2d(tau), np.asarray(mu0, dtype=float), _2d(low), _2d(high))
 
@@ -90,8 +95,12 @@ class _Compiled:
         if form == "compact":
             self.kind = "compact"
 
-    def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
-        tau, mu0, low, high = self.compiled.predict_interval(table.frame(), confidence=confidence)
+    def estimate(
+        self, table: FeatureTable, confidence: float, *, threads: int | None = None
+    ) -> Estimates:
+        tau, mu0, low, high = self.compiled.predict_interval(
+            table.frame(), confidence=confidence, n_threads=threads
+        )
         return Estimates(_2d(tau), np.asarray(mu0, dtype=float), _2d(low), _2d(high))
 
     def estimate_row(self, row: dict[str, Any], confidence: float) -> Estimates:

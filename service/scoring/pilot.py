@@ -33,7 +33,9 @@ class PilotModel:
     def __init__(self, n_arms: int) -> None:
         self.n_arms = n_arms
 
-    def estimate(self, table: FeatureTable, confidence: float) -> Estimates:
+    def estimate(
+        self, table: FeatureTable, confidence: float, *, threads: int | None = None
+    ) -> Estimates:
         zeros = np.zeros((len(table), self.n_arms))
         return Estimates(zeros, np.zeros(len(table)), zeros, zeros)
 
