@@ -10,6 +10,7 @@ a :class:`~service.decisions.record.DecisionRecord` per decision.
 
 from __future__ import annotations
 
+import functools
 import itertools
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
@@ -134,6 +135,13 @@ class DecisionColumns:
         for name in ("explored", "holdout", "do_not_contact"):
             if np.asarray(getattr(self, name)).shape != (n,):
                 raise self._fail(0, name, f"must hold {n} flags")
+
+    @functools.cached_property
+    def checked_rows(self) -> list[tuple[Any, ...]]:
+        """:meth:`check`, then :meth:`rows` as a list, built once: the batch path builds
+        them on its deciding thread, so the log's writer only inserts."""
+        self.check()
+        return list(self.rows())
 
     def rows(self) -> Iterator[tuple[Any, ...]]:
         """Database rows in :data:`~service.decisions.record.COLUMNS` order (unchecked).

@@ -499,9 +499,8 @@ class DecisionLog(ABC):
 
 
 def _column_rows(batches: Sequence[DecisionColumns]) -> list[tuple[Any, ...]]:
-    for batch in batches:
-        batch.check()
-    return [row for batch in batches for row in batch.rows()]
+    checked = [batch.checked_rows for batch in batches]  # every batch checked first
+    return [row for rows in checked for row in rows]
 
 
 def _select(columns: Sequence[str]) -> str:

@@ -70,6 +70,7 @@ async def score_batch(
                 decided = decide_chunk(bound, ids[start:stop], table.slice(start, stop),
                                        values[start:stop], threads=1)  # fmt: skip
                 logged = emit_columns(decided)
+                logged.checked_rows  # noqa: B018 (built here, off the writer's path)
                 return logged, view(decided, logged)
 
             logged, shown = await run_work(work, stop - start)
@@ -117,7 +118,9 @@ async def rank_batch(
         for chunk, (start, stop) in zip(chunks, spans, strict=True):
 
             def work(chunk: Decided = chunk, start: int = start) -> DecisionColumns:
-                return emit_columns(chunk, ranking, start)
+                logged = emit_columns(chunk, ranking, start)
+                logged.checked_rows  # noqa: B018 (built here, off the writer's path)
+                return logged
 
             logged = await run_work(work, len(chunk))
             await pipeline.commit(logged)

@@ -28,6 +28,7 @@ def test_rows_equal_the_record_rows(make_record: RecordFactory) -> None:
     columns = DecisionColumns.from_records(records)
     columns.check()
     assert list(columns.rows()) == [to_row(r) for r in records]
+    assert columns.checked_rows == [to_row(r) for r in records]
     assert columns.records() == records
 
 
@@ -54,6 +55,9 @@ def test_check_names_the_field(
     columns = replace(DecisionColumns.from_records(_records(make_record)), **{field: bad})
     with pytest.raises(DataError, match=message):
         columns.check()
+    for _ in range(2):  # checked_rows checks too, every time: a refusal is not cached
+        with pytest.raises(DataError, match=message):
+            columns.checked_rows  # noqa: B018
 
 
 def test_a_zero_propensity_is_refused(make_record: RecordFactory) -> None:
