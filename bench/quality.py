@@ -10,7 +10,8 @@ is its own. Prints a table and writes it as JSON.
 Learners are named as in ``service.uplift.LEARNERS`` (tuned nuisance models, the
 default); ``NAME/fixed`` runs one with the fixed default settings (``tune=False``), and
 ``auto`` runs the training command's selection (5-fold cross-validated Qini over
-``AUTO_CANDIDATES`` on the training sample only) and fits the winner.
+``AUTO_CANDIDATES``, screened by the out-of-fold R-loss, on the training sample only) and
+fits the winner.
 
 With ``--bootstrap B`` (default 20; 0 skips it) the learner is fitted with B bootstrap
 refits and the compact serving form is built exactly as ``upshot train`` builds it

@@ -20,17 +20,24 @@ from sklearn.model_selection import StratifiedKFold
 from service.errors import DataError
 from service.evaluation.areas import qini_coefficient
 from service.evaluation.report import evaluate_uplift
-from service.uplift import UpliftLearner
+from service.uplift import TLearner, UpliftLearner
 from service.uplift._features import as_frame
 
-__all__ = ["CrossValidated", "SelectionResult", "cross_validated_uplift", "select_learner"]
+__all__ = [
+    "CrossValidated",
+    "SelectionResult",
+    "cross_validated_uplift",
+    "r_loss",
+    "select_learner",
+]
 
 
 @dataclass(frozen=True)
 class CrossValidated:
     """Out-of-fold predictions of one learner and the metrics measured on them.
 
-    ``oof`` has shape (n, n_arms); ``fold`` gives each row's fold; ``metrics`` is
+    ``oof`` has shape (n, n_arms) and ``oof_control`` (the expected outcome without
+    contact) shape (n,); ``fold`` gives each row's fold; ``metrics`` is
     :func:`~service.evaluation.evaluate_uplift` on the pooled out-of-fold scores;
     ``fold_qini`` holds the normalised Qini of each fold (rows: folds, columns: arms)
     and ``qini_interval`` a t-interval over folds of their mean across arms.
@@ -51,6 +58,7 @@ class CrossValidated:
     fold_qini: np.ndarray
     qini_interval: tuple[float, float, float] = field(default=(np.nan, np.nan, np.nan))
     importance: dict[str, dict[str, float]] | None = None
+    oof_control: np.ndarray | None = None
 
     @property
     def score(self) -> float:
@@ -61,7 +69,8 @@ class CrossValidated:
 
 @dataclass(frozen=True)
 class SelectionResult:
-    """The winning learner's name, every candidate's score and its out-of-fold results.
+    """The winning learner's name, every candidate's score (out-of-fold Qini), its
+    out-of-fold results and R-loss (see :func:`select_learner`).
 
     References
     ----------
@@ -72,6 +81,7 @@ class SelectionResult:
     best: str
     scores: dict[str, float]
     results: dict[str, CrossValidated]
+    r_losses: dict[str, float] = field(default_factory=dict)
 
 
 def _strata(y: np.ndarray, treatment: np.ndarray) -> np.ndarray:
@@ -145,6 +155,7 @@ def cross_validated_uplift(
     splitter = StratifiedKFold(n_splits, shuffle=True, random_state=random_state)
     fold = np.empty(len(frame), dtype=int)
     oof: np.ndarray | None = None
+    oof_control = np.empty(len(frame))
     permuted: dict[str, np.ndarray] = {}
     rng = np.random.default_rng(random_state)
     arms: list[Any] = []
@@ -160,7 +171,7 @@ def cross_validated_uplift(
         if oof is None:
             arms, control = list(model.arms_), model.control_
             oof = np.empty((len(frame), len(arms)))
-        oof[test] = model.predict(frame.iloc[test])
+        oof[test], oof_control[test] = model.predict_effects(frame.iloc[test])
         if importance:
             for name in frame.columns:
                 shuffled = frame.iloc[test].copy()
@@ -178,7 +189,7 @@ def cross_validated_uplift(
         else None
     )
     return CrossValidated(
-        arms, control, oof, fold, metrics, fold_qini, _t_interval(fold_qini), ranks
+        arms, control, oof, fold, metrics, fold_qini, _t_interval(fold_qini), ranks, oof_control
     )
 
 
@@ -253,6 +264,67 @@ def _t_interval(fold_qini: np.ndarray, confidence: float = 0.95) -> tuple[float,
     return (mean, mean - half, mean + half)
 
 
+def r_loss(
+    y: np.ndarray,
+    arm_index: np.ndarray,
+    tau: np.ndarray,
+    mu: np.ndarray,
+    propensity: np.ndarray,
+    sample_weight: np.ndarray | None = None,
+) -> np.ndarray:
+    """The R-loss of each arm's effect estimate against control, shape (n_arms,).
+
+    For arm ``a``, over the rows of control and ``a``, with ``e`` the probability of
+    ``a`` within the pair and ``m = (1 - e) mu_0 + e mu_a`` the pair's outcome mean: the
+    weighted mean of ``(y - m - (1[t=a] - e) tau_a)^2``. Its expectation is smallest at
+    the true effect whatever the outcome model's error, so it compares effect
+    estimates without knowing the effect (the nuisances ``mu`` and the estimates
+    ``tau`` should both be out of fold).
+
+    Parameters
+    ----------
+    y : array of shape (n,)
+    arm_index : array of shape (n,)
+        0 for control, ``a`` for the a-th arm.
+    tau : array of shape (n, n_arms)
+    mu : array of shape (n, 1 + n_arms)
+        Expected outcome under control and each arm.
+    propensity : array of shape (n, 1 + n_arms)
+    sample_weight : array of shape (n,), optional
+
+    References
+    ----------
+    Nie, X. & Wager, S. (2021). Quasi-oracle estimation of heterogeneous treatment
+    effects. Biometrika 108(2), 299-319.
+    Robinson, P. M. (1988). Root-N-consistent semiparametric regression. Econometrica
+    56(4), 931-954.
+    """
+    squared, weight = _r_loss_rows(y, arm_index, tau, mu, propensity, sample_weight)
+    return np.asarray((squared * weight).sum(axis=0) / weight.sum(axis=0))
+
+
+def _r_loss_rows(
+    y: np.ndarray,
+    arm_index: np.ndarray,
+    tau: np.ndarray,
+    mu: np.ndarray,
+    propensity: np.ndarray,
+    sample_weight: np.ndarray | None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Each row's squared R-residual per arm and its weight (0 outside the arm's pair)."""
+    w = np.ones(len(y)) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    squared = np.zeros_like(tau, dtype=float)
+    weight = np.zeros_like(tau, dtype=float)
+    for a in range(1, tau.shape[1] + 1):
+        rows = (arm_index == 0) | (arm_index == a)
+        e = propensity[rows, a] / (propensity[rows, a] + propensity[rows, 0])
+        m = (1 - e) * mu[rows, 0] + e * mu[rows, a]
+        residual = y[rows] - m - ((arm_index[rows] == a) - e) * tau[rows, a - 1]
+        squared[rows, a - 1] = residual**2
+        weight[rows, a - 1] = w[rows]
+    return squared, weight
+
+
 def _named(on_fold: Callable[[str, int], None] | None, name: str) -> Callable[[int], None] | None:
     if on_fold is None:
         return None
@@ -272,13 +344,27 @@ def select_learner(
     on_fold: Callable[[str, int], None] | None = None,
     importance: bool = False,
 ) -> SelectionResult:
-    """Cross-validate every candidate on the same folds; the best pooled out-of-fold
-    normalised Qini (mean over arms) wins, ties going to the first candidate listed.
+    """Cross-validate every candidate on the same folds and pick one.
+
+    The winner has the best pooled out-of-fold normalised Qini (mean over arms; ties go
+    to the first candidate listed) among the candidates whose out-of-fold R-loss (mean
+    over arms, see :func:`r_loss`) is within one standard error of the smallest. The
+    Qini only scores the ranking; the screen drops a candidate whose effect estimates
+    are clearly worse, which a ranking can hide (with a constant true effect every
+    ranking is noise). The R-loss's outcome models are the out-of-fold fits of the
+    first T-learner among the candidates (or of one with the first candidate's
+    settings); its propensities are ``propensity`` or, without one, the arm shares.
 
     References
     ----------
     Radcliffe, N. J. (2007). Using control groups to target on predicted lift. Direct
     Marketing Analytics Journal, 1, 14-21.
+    Nie, X. & Wager, S. (2021). Quasi-oracle estimation of heterogeneous treatment
+    effects. Biometrika 108(2), 299-319 (the R-loss).
+    Schuler, A., Baiocchi, M., Tibshirani, R. & Shah, N. (2018). A comparison of methods
+    for model selection when estimating individual treatment effects. arXiv:1804.05146.
+    Hastie, T., Tibshirani, R. & Friedman, J. (2009). The Elements of Statistical
+    Learning, 2nd ed., Springer, sec. 7.10 (the one-standard-error rule).
     """
     if not candidates:
         raise DataError("No candidate learners were given; pass at least one.")
@@ -298,5 +384,76 @@ def select_learner(
         for name, learner in candidates.items()
     }
     scores = {name: r.score for name, r in results.items()}
-    best = max(scores, key=lambda name: (scores[name], -list(scores).index(name)))
-    return SelectionResult(best, scores, results)
+
+    def fit_nuisance(learner: UpliftLearner) -> CrossValidated:
+        return cross_validated_uplift(
+            learner,
+            X,
+            y,
+            treatment,
+            propensity=propensity,
+            sample_weight=sample_weight,
+            n_splits=n_splits,
+            random_state=random_state,
+        )
+
+    nuisance = _nuisance(candidates, results, fit_nuisance)
+    y_arr, t_arr = np.asarray(y, dtype=float), np.asarray(treatment, dtype=object)
+    terms = {
+        name: _r_loss_terms(r, nuisance, y_arr, t_arr, propensity, sample_weight)
+        for name, r in results.items()
+    }
+    r_losses = {name: float(values.sum()) for name, values in terms.items()}
+    lowest = min(r_losses, key=lambda name: r_losses[name])
+
+    def within_one_se(name: str) -> bool:
+        # The terms are per row, so the sum's standard error is sqrt(n) times their SD.
+        gap = terms[name] - terms[lowest]
+        return float(gap.sum()) <= float(np.sqrt(len(gap)) * gap.std())
+
+    eligible = [name for name in scores if within_one_se(name)]
+    best = max(eligible, key=lambda name: (scores[name], -list(scores).index(name)))
+    return SelectionResult(best, scores, results, r_losses)
+
+
+def _nuisance(
+    candidates: Mapping[str, UpliftLearner],
+    results: Mapping[str, CrossValidated],
+    fit: Callable[[UpliftLearner], CrossValidated],
+) -> CrossValidated:
+    """Out-of-fold outcome models for the R-loss: the first T-learner among the
+    candidates or, without one, a T-learner with the first candidate's settings."""
+    for name, learner in candidates.items():
+        if isinstance(learner, TLearner):
+            return results[name]
+    first = next(iter(candidates.values())).get_params()
+    own = TLearner().get_params()
+    return fit(TLearner(**{key: value for key, value in first.items() if key in own}))
+
+
+def _r_loss_terms(
+    cv: CrossValidated,
+    nuisance: CrossValidated,
+    y: np.ndarray,
+    treatment: np.ndarray,
+    propensity: Any,
+    sample_weight: Any,
+) -> np.ndarray:
+    """Each row's share of the mean over arms of :func:`r_loss` of ``cv``'s out-of-fold
+    effects (the terms sum to it), with ``nuisance``'s out-of-fold outcome models."""
+    labels = [cv.control, *cv.arms]
+    lookup = {label: k for k, label in enumerate(labels)}
+    arm_index = np.array([lookup[label] for label in treatment])
+    w = np.ones(len(y)) if sample_weight is None else np.asarray(sample_weight, dtype=float)
+    if propensity is None:
+        shares = np.bincount(arm_index, weights=w, minlength=len(labels)) / w.sum()
+        p = np.tile(shares, (len(y), 1))
+    else:
+        p = np.asarray(propensity, dtype=float)
+        p = np.column_stack([1.0 - p, p]) if p.ndim == 1 else p
+    assert nuisance.oof_control is not None
+    order = [nuisance.arms.index(arm) for arm in cv.arms]
+    mu0 = nuisance.oof_control[:, None]
+    mu = np.hstack([mu0, mu0 + nuisance.oof[:, order]])
+    squared, weight = _r_loss_rows(y, arm_index, cv.oof, mu, p, w)
+    return np.asarray((squared * weight / weight.sum(axis=0)).sum(axis=1) / len(cv.arms))
