@@ -51,15 +51,16 @@ __all__ = [
 ]
 
 # Each of these trees is walked for every scored row. Measured with 20 refits, 20,000
-# training rows (bench/quality.py seed 0; do-not-contact agreement with the full form,
-# worst of the levels 0.80/0.90/0.95, on the held-out training quarter / on 50,000 test
-# rows). The previous 200 trees of 15 leaves at rate 0.1, fitted on the fit rows alone:
-# groups 98.86/98.89%, groups_two_arms 98.68/98.83%, larkspur 99.04/98.98%, nw_c
-# 98.90/99.07%. These 60 trees of 63 leaves at rate 0.3, fitted on the fit rows plus
-# four synthetic rows per row (_SYNTHETIC_PER_ROW) with rows near a do-not-contact
-# boundary weighted up (_boundary_weights): 99.24/99.09%, 99.08/99.10%, 99.46/99.37%,
-# 98.90/99.23%; the demo's scoring kernel went from 42 to 26 us/row (1 thread, shared
-# machine). Larger leaves or more synthetic rows gained < 0.1 point more at more cost.
+# training rows (bench/quality.py's seed-0 fits; do-not-contact agreement with the full
+# form, worst of the levels 0.80/0.90/0.95, on the held-out training quarter / on 50,000
+# test rows). The previous 200 trees of 15 leaves at rate 0.1, fitted on the fit rows
+# alone: groups 98.86/98.89%, groups_two_arms 98.68/98.83%, larkspur 99.04/98.98%, nw_c
+# 98.90/99.07%, nw_d 97.84/98.08%. These 60 trees of 63 leaves at rate 0.3, fitted on the
+# fit rows plus four synthetic rows per row (_SYNTHETIC_PER_ROW) with rows near a
+# do-not-contact boundary weighted up (_boundary_weights): 99.12/99.05%, 99.02/99.10%,
+# 99.44/99.38%, 98.90/99.26%, 98.08/98.32%. The demo's compact-form kernel went from 62 to
+# 45 us/row (1 thread, side by side, loaded machine). 255 leaves and eight synthetic rows
+# per row gained 0.1 point on nw_d and none that mattered elsewhere, at more cost.
 SPREAD_PARAMS: dict[str, Any] = {
     "learning_rate": 0.3,
     "max_iter": 60,
