@@ -30,7 +30,7 @@ import pandas as pd
 from threadpoolctl import threadpool_limits
 
 from service.uplift import BootstrapUplift, make_learner
-from service.uplift.compact import bootstrap_sd, compact_form, fit_spread_models
+from service.uplift.compact import compact_form, fit_spread_models
 from service.uplift.compiled import CompiledUplift, compile_model
 
 FIRST_CALL = """
@@ -142,9 +142,7 @@ def _bench(name: str, args: argparse.Namespace) -> list[tuple[str, str, str]]:
 
     trained = compiled.encode(X)
     with threadpool_limits(1):
-        spread = fit_spread_models(
-            trained, bootstrap_sd(compiled, trained), compiled.encoder_.categorical_mask, seed=0
-        )
+        spread = fit_spread_models(compiled, trained, seed=0)
     compact = compact_form(model, spread)
     compact.warm_up()
     compact_row = _timings(compact.predict_row, rows)

@@ -66,7 +66,12 @@ def build_compact_form(
     method = {
         "interval": "normal, tau +/- z * exp(g_a(x)); g_a regresses the log bootstrap "
         "standard deviation of arm a on the features",
-        "spread_model": {"kind": "histogram gradient boosting", "params": SPREAD_PARAMS},
+        "spread_model": {
+            "kind": "histogram gradient boosting",
+            "params": SPREAD_PARAMS,
+            "rows": "the fit rows plus synthetic rows near them (MUNGE), labelled by the "
+            "full form; rows near a do-not-contact boundary weighted up",
+        },
         "held_out_share": HELD_OUT_SHARE,
     }
     try:
@@ -76,9 +81,7 @@ def build_compact_form(
         rows = np.random.default_rng(random_state).permutation(len(encoded))
         cut = int(round(len(rows) * (1 - HELD_OUT_SHARE)))
         fit_rows, held = np.sort(rows[:cut]), np.sort(rows[cut:])
-        spread = fit_spread_models(
-            encoded[fit_rows], sd[fit_rows], full.encoder_.categorical_mask, seed=random_state
-        )
+        spread = fit_spread_models(full, encoded[fit_rows], seed=random_state)
         compact = compact_form(model, spread)
     except (BundleError, DataError) as err:
         return _refused(f"no compact form could be built: {err}", method, None)

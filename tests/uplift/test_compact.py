@@ -29,6 +29,7 @@ from service.uplift.compact import (
     interval_sd,
     load_form,
     save_form,
+    synthetic_rows,
 )
 from service.uplift.compiled import compile_model
 
@@ -44,9 +45,7 @@ def _one_openmp_thread() -> Iterator[None]:
 def _compact(model: BootstrapUplift, design: str) -> tuple[object, list[object]]:
     full = compile_model(model, warm_up=False)
     encoded = full.encode(_campaign(design)[0])
-    spread = fit_spread_models(
-        encoded, bootstrap_sd(full, encoded), full.encoder_.categorical_mask, seed=0
-    )
+    spread = fit_spread_models(full, encoded, seed=0)
     return compact_form(model, spread), spread
 
 
@@ -108,6 +107,47 @@ def test_saved_form_loads_without_pickle_and_scores_the_same(tmp_path: Path) -> 
     assert np.isfinite(loaded.predict_row(row)[3]).all()
 
 
+def test_form_with_other_spread_sizes_still_loads(tmp_path: Path) -> None:
+    # Forms saved before the spread models' sizes changed (200 trees of 15 leaves, rate
+    # 0.1): the file holds the trees themselves, so any size loads and scores as fitted.
+    from sklearn.ensemble import HistGradientBoostingRegressor
+
+    model = _fitted("t", "gbm", "one_arm")
+    full = compile_model(model, warm_up=False)
+    X = _scoring_frame("one_arm")
+    encoded = full.encode(_campaign("one_arm")[0])
+    previous = HistGradientBoostingRegressor(
+        learning_rate=0.1, max_iter=200, max_leaf_nodes=15, min_samples_leaf=40,
+        l2_regularization=1.0, early_stopping=False, random_state=0,
+    )  # fmt: skip
+    previous.fit(encoded, np.log(bootstrap_sd(full, encoded)[:, 0]))
+    path = tmp_path / "compact.npz"
+    save_form(compact_form(model, [previous]), path)
+    tau, _, _, high = load_form(path).predict_interval(X, confidence=0.9)
+    sd = np.exp(previous.predict(model.encoder_.transform(X)))  # scikit-learn
+    np.testing.assert_allclose(high[:, 0] - tau[:, 0], norm.ppf(0.95) * sd, rtol=1e-9)
+
+
+def test_synthetic_rows_stay_near_the_data() -> None:
+    # MUNGE (Bucilua et al. 2006): categories come from the data, missing values stay
+    # missing, and numbers keep about the data's range (common practice, no source).
+    model = _fitted("t", "gbm", "one_arm")
+    encoded = model.encoder_.transform(_campaign("one_arm")[0])
+    mask = model.encoder_.categorical_mask
+    rows = synthetic_rows(encoded, mask, 3 * len(encoded), np.random.default_rng(0))
+    assert rows.shape == (3 * len(encoded), encoded.shape[1])
+    assert np.array_equal(np.isnan(rows).mean(axis=0) > 0, np.isnan(encoded).mean(axis=0) > 0)
+    for j in np.flatnonzero(mask):
+        assert set(rows[~np.isnan(rows[:, j]), j]) <= set(encoded[~np.isnan(encoded[:, j]), j])
+    numeric = ~mask
+    low, high = np.nanmin(encoded[:, numeric], 0), np.nanmax(encoded[:, numeric], 0)
+    inside = (rows[:, numeric] >= low - (high - low) / 2) & (
+        rows[:, numeric] <= high + (high - low) / 2
+    )
+    assert np.mean(inside | np.isnan(rows[:, numeric])) > 0.99
+    assert not np.array_equal(rows[: len(encoded)], encoded)
+
+
 def test_damaged_program_is_refused(tmp_path: Path) -> None:
     model = _fitted("t", "gbm", "one_arm")
     compact, _ = _compact(model, "one_arm")
@@ -133,9 +173,7 @@ def test_compact_interval_covers_the_true_effect_like_the_full_one() -> None:
     model.fit(train.X, train.y, train.treatment)
     full = compile_model(model, warm_up=False)
     encoded = full.encode(train.X)
-    spread = fit_spread_models(
-        encoded, bootstrap_sd(full, encoded), full.encoder_.categorical_mask, seed=0
-    )
+    spread = fit_spread_models(full, encoded, seed=0)
     compact = compact_form(model, spread)
     coverage, width = {}, {}
     for form, scorer in (("full", full), ("compact", compact)):
