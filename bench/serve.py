@@ -269,10 +269,10 @@ def _big_rank(models_dir: Path, log_path: Path, n: int, chunk: int, capacity: in
     spent = {"model": 0.0, "source": 0.0}
     estimate = model.estimate
 
-    def timed_estimate(table, level):  # type: ignore[no-untyped-def]
+    def timed_estimate(table, level, **options):  # type: ignore[no-untyped-def]
         start = time.perf_counter()
         try:
-            return estimate(table, level)
+            return estimate(table, level, **options)
         finally:
             spent["model"] += time.perf_counter() - start
 
