@@ -18,7 +18,10 @@ pytestmark = [pytest.mark.anyio, pytest.mark.slow]
 
 
 def _train_with_compact_form(models_dir: Path) -> str:
-    sim = simulate(MODEL, n=3000, random_state=2)
+    # 750 held-out rows decide the compact form's 99% do-not-contact check, one row being
+    # 0.13 points: with the 60 x 63 spread models seed 2 fell one row short (98.93%), so
+    # the fixture uses a seed whose form is kept; the refusal path has its own tests.
+    sim = simulate(MODEL, n=3000, random_state=3)
     result = train_model(
         sim.to_frame(),
         treatment=sim.treatment_name,
