@@ -147,13 +147,7 @@ def _hash_rows(
 def blake2b_many(head: bytes, parts: Sequence[bytes], digest_size: int) -> npt.NDArray[np.uint8]:
     """``hashlib.blake2b(head + part, digest_size=digest_size).digest()`` of every part,
     as the rows of an ``(n, digest_size)`` byte array."""
-    if sys.byteorder != "little":
-        raise RuntimeError("blake2b_many reads message words in little-endian byte order")
-    if not 1 <= digest_size <= 64:
-        raise ValueError(f"digest_size must be in [1, 64], got {digest_size}")
-    offsets = np.zeros(len(parts) + 1, dtype=np.int64)
-    np.cumsum(np.fromiter(map(len, parts), dtype=np.int64, count=len(parts)), out=offsets[1:])
-    return _run(head, b"".join(parts), offsets, digest_size)
+    return _run(head, b"".join(parts), _offsets(parts), digest_size)
 
 
 def blake2b_texts(texts: Sequence[str], digest_size: int) -> npt.NDArray[np.uint8]:
@@ -161,15 +155,23 @@ def blake2b_texts(texts: Sequence[str], digest_size: int) -> npt.NDArray[np.uint
     joined = "".join(texts)
     if not joined.isascii():
         return blake2b_many(b"", [t.encode("utf-8") for t in texts], digest_size)
-    offsets = np.zeros(len(texts) + 1, dtype=np.int64)
     # ASCII: one character is one byte, so the text lengths are the byte lengths.
-    np.cumsum(np.fromiter(map(len, texts), dtype=np.int64, count=len(texts)), out=offsets[1:])
-    return _run(b"", joined.encode("ascii"), offsets, digest_size)
+    return _run(b"", joined.encode("ascii"), _offsets(texts), digest_size)
+
+
+def _offsets(items: Sequence[bytes] | Sequence[str]) -> npt.NDArray[np.int64]:
+    offsets = np.zeros(len(items) + 1, dtype=np.int64)
+    np.cumsum(np.fromiter(map(len, items), dtype=np.int64, count=len(items)), out=offsets[1:])
+    return offsets
 
 
 def _run(
     head: bytes, buf: bytes, offsets: npt.NDArray[np.int64], digest_size: int
 ) -> npt.NDArray[np.uint8]:
+    if sys.byteorder != "little":
+        raise RuntimeError("blake2b_many reads message words in little-endian byte order")
+    if not 1 <= digest_size <= 64:
+        raise ValueError(f"digest_size must be in [1, 64], got {digest_size}")
     out = np.empty((len(offsets) - 1, digest_size), dtype=np.uint8)
     _hash_rows(
         np.frombuffer(head, dtype=np.uint8), np.frombuffer(buf, dtype=np.uint8), offsets,

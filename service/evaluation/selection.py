@@ -368,36 +368,20 @@ def select_learner(
     """
     if not candidates:
         raise DataError("No candidate learners were given; pass at least one.")
+
+    def fit(learner: UpliftLearner, **options: Any) -> CrossValidated:
+        # Every fit, candidates' and the nuisance's, on the same folds.
+        return cross_validated_uplift(
+            learner, X, y, treatment, propensity=propensity, sample_weight=sample_weight,
+            n_splits=n_splits, random_state=random_state, **options,
+        )  # fmt: skip
+
     results = {
-        name: cross_validated_uplift(
-            learner,
-            X,
-            y,
-            treatment,
-            propensity=propensity,
-            sample_weight=sample_weight,
-            n_splits=n_splits,
-            random_state=random_state,
-            on_fold=_named(on_fold, name),
-            importance=importance,
-        )
+        name: fit(learner, on_fold=_named(on_fold, name), importance=importance)
         for name, learner in candidates.items()
     }
     scores = {name: r.score for name, r in results.items()}
-
-    def fit_nuisance(learner: UpliftLearner) -> CrossValidated:
-        return cross_validated_uplift(
-            learner,
-            X,
-            y,
-            treatment,
-            propensity=propensity,
-            sample_weight=sample_weight,
-            n_splits=n_splits,
-            random_state=random_state,
-        )
-
-    nuisance = _nuisance(candidates, results, fit_nuisance)
+    nuisance = _nuisance(candidates, results, fit)
     y_arr, t_arr = np.asarray(y, dtype=float), np.asarray(treatment, dtype=object)
     terms = {
         name: _r_loss_terms(r, nuisance, y_arr, t_arr, propensity, sample_weight)
