@@ -5,6 +5,7 @@ from __future__ import annotations
 import asyncio
 import sqlite3
 import threading
+import time
 from collections.abc import Callable, Iterator
 from dataclasses import replace
 from datetime import UTC, datetime
@@ -242,6 +243,35 @@ def test_sqlite_writer_waits_for_another_process_lock_then_commits(
             other.execute("COMMIT")
             other.close()
         assert opened.get(make_record(3).decision_id) is None
+
+
+def test_sqlite_checkpoints_big_commits_in_the_background(
+    tmp_path: Path, make_record: RecordFactory
+) -> None:
+    """After a commit of ``_CHECKPOINT_ROWS`` rows the checkpointer thread copies the
+    write-ahead log into the database file while the log stays open; SQLite's own
+    automatic checkpoint would wait for ``_CHECKPOINT_PAGES`` pages of log."""
+    import service.decisions.sqlite as engine
+
+    path = tmp_path / "log.db"
+    wal = tmp_path / "log.db-wal"
+    n = engine._CHECKPOINT_ROWS
+    with DecisionLog.open(path) as opened:
+        opened.append_sync([make_record(0)])
+        before = path.stat().st_size
+        opened.append_sync([make_record(i) for i in range(1, n + 1)])
+        assert wal.stat().st_size < engine._CHECKPOINT_PAGES * 4096  # not SQLite's own
+        deadline = time.monotonic() + 10
+        while path.stat().st_size <= before and time.monotonic() < deadline:
+            time.sleep(0.02)
+        assert path.stat().st_size > before
+        assert opened.get(make_record(n).decision_id) is not None
+    conn = sqlite3.connect(path)
+    try:
+        assert conn.execute("SELECT count(*) FROM decisions").fetchone()[0] == n + 1
+        assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+    finally:
+        conn.close()
 
 
 def test_writable_until_closed(location: str, make_record: RecordFactory) -> None:
