@@ -134,7 +134,12 @@ class SqliteLog(DecisionLog):
             return int(tx.rows("PRAGMA user_version")[0][0])
 
     def _open_sink(self) -> _SqliteSink:
-        return _SqliteSink(connect(self.path), _Checkpointer(self.path), _Turns(self.path))
+        turns = _Turns(self.path)
+        try:
+            return _SqliteSink(connect(self.path), _Checkpointer(self.path), turns)
+        except BaseException:
+            turns.close()
+            raise
 
     @contextmanager
     def _read(self) -> Iterator[Tx]:
