@@ -390,6 +390,8 @@ class _Checkpointer(threading.Thread):
                 try:
                     conn.execute("PRAGMA wal_checkpoint(PASSIVE)").fetchall()
                 except sqlite3.Error as err:  # the writer's own checkpoints take over
-                    logger.warning("decision log checkpoint failed: %s", err)
+                    # Busy: another process's checkpoint is running, nothing to report.
+                    if err.sqlite_errorcode & 0xFF not in _BUSY_CODES:
+                        logger.warning("decision log checkpoint failed: %s", err)
         finally:
             conn.close()
