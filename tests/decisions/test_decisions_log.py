@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import asyncio
+import fcntl
+import os
 import sqlite3
 import threading
 import time
@@ -285,7 +287,7 @@ def test_sqlite_writers_take_turns_in_order(tmp_path: Path) -> None:
     first, second = (_SqliteSink(connect(path), _Checkpointer(path), _Turns(path))
                      for _ in range(2))  # fmt: skip
     try:
-        for _ in range(5):  # without the hand-over the waiter wins about one race in three
+        for _ in range(10):  # without the hand-over the holder wins some of these races
             order: list[str] = []
             first.begin()
 
@@ -296,7 +298,7 @@ def test_sqlite_writers_take_turns_in_order(tmp_path: Path) -> None:
 
             waiter = threading.Thread(target=other)
             waiter.start()
-            time.sleep(0.1)  # the second writer is waiting for its turn
+            _until_waiting(path)
             assert order == []
             first.commit()
             first.begin()  # waits until the second writer has had its turn
@@ -307,6 +309,23 @@ def test_sqlite_writers_take_turns_in_order(tmp_path: Path) -> None:
     finally:
         first.close()
         second.close()
+
+
+def _until_waiting(path: Path) -> None:
+    """Return once a writer has registered as waiting (holds ``<log>-queue`` shared)."""
+    probe = os.open(f"{path}-queue", os.O_RDWR)
+    try:
+        deadline = time.monotonic() + 10
+        while time.monotonic() < deadline:
+            try:
+                fcntl.flock(probe, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except BlockingIOError:
+                return
+            fcntl.flock(probe, fcntl.LOCK_UN)
+            time.sleep(0.005)
+        raise AssertionError("the second writer never waited for its turn")
+    finally:
+        os.close(probe)
 
 
 def test_writable_until_closed(location: str, make_record: RecordFactory) -> None:
