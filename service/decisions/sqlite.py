@@ -224,8 +224,7 @@ class _SqliteSink:
         # Waiting for another process's write lock is done in begin(), not by SQLite.
         conn.execute("PRAGMA busy_timeout = 0")
         self._checkpointer = checkpointer
-        self._unchecked = 0  # rows committed since the checkpointer was last woken
-        self._pending = 0  # rows inserted in the open transaction
+        self._unchecked = 0  # rows inserted since the checkpointer was last woken
         checkpointer.start()
 
     def begin(self) -> None:
@@ -263,20 +262,17 @@ class _SqliteSink:
             self._conn.execute("RELEASE job")
             raise Rejected(str(err)) from err
         self._conn.execute("RELEASE job")
-        self._pending += inserted
+        self._unchecked += inserted
         return inserted
 
     def commit(self) -> None:
         self._conn.execute("COMMIT")
         self._turns.give_back()
-        self._unchecked += self._pending
-        self._pending = 0
         if self._unchecked >= _CHECKPOINT_ROWS:
             self._unchecked = 0
             self._checkpointer.poke()
 
     def rollback(self) -> None:
-        self._pending = 0
         try:
             if self._conn.in_transaction:
                 self._conn.execute("ROLLBACK")
@@ -355,7 +351,7 @@ class _Checkpointer(threading.Thread):
     in-process run each, side by side). A PASSIVE checkpoint never blocks the writer
     or readers; if it falls behind, the writer's own automatic checkpoint
     (``_CHECKPOINT_PAGES``) still bounds the log. The writer wakes it once every
-    ``_CHECKPOINT_ROWS`` committed rows (every chunk of a batch, every few seconds of
+    ``_CHECKPOINT_ROWS`` inserted rows (every chunk of a batch, every few seconds of
     single scores: waking a thread per single-score commit cost them 10-20%).
     """
 

@@ -280,12 +280,11 @@ def test_sqlite_writers_take_turns_in_order(tmp_path: Path) -> None:
     """A writer that finds the log's turn taken gets it before the holder's next
     transaction: the holder lets go, then waits for the waiter, as another worker's
     writer would (each sink holds its own lock files, as separate processes do)."""
-    from service.decisions.sqlite import _Checkpointer, _SqliteSink, _Turns, connect
+    from service.decisions.sqlite import SqliteLog
 
     path = tmp_path / "log.db"
-    DecisionLog.open(path).close()  # creates and migrates the file
-    first, second = (_SqliteSink(connect(path), _Checkpointer(path), _Turns(path))
-                     for _ in range(2))  # fmt: skip
+    log = SqliteLog(path)
+    first, second = log._open_sink(), log._open_sink()
     try:
         for _ in range(10):  # without the hand-over the holder wins some of these races
             order: list[str] = []
@@ -309,6 +308,7 @@ def test_sqlite_writers_take_turns_in_order(tmp_path: Path) -> None:
     finally:
         first.close()
         second.close()
+        log.close()
 
 
 def _until_waiting(path: Path) -> None:
